@@ -1,0 +1,8 @@
+//! The calculation engine: plain Rust, no browser. Everything Cuvette computes lives
+//! here and is tested natively with `cargo test`.
+//!
+//! **Invariant:** nothing under `src/engine/` imports leptos, web-sys, wasm-bindgen,
+//! js-sys, gloo or plotters, and nothing here reads or writes storage. Callers pass
+//! values in (including "now" and the lab's time zone) and get values back.
+
+pub mod lm;
