@@ -5,4 +5,5 @@
 //! js-sys, gloo or plotters, and nothing here reads or writes storage. Callers pass
 //! values in (including "now" and the lab's time zone) and get values back.
 
+pub mod calibration;
 pub mod lm;

@@ -1,0 +1,1094 @@
+//! Calibration curves: fit a model to calibrator readings and turn signals back into
+//! concentrations.
+//!
+//! Models: single-point factor (signal already reagent-blank subtracted), linear
+//! (ordinary or weighted least squares), linear through the origin, quadratic, and the
+//! four- and five-parameter logistic curves used for immunoassays:
+//!
+//! * 4PL: signal = d + (a − d) / (1 + (conc/c)^b)
+//! * 5PL: signal = d + (a − d) / (1 + (conc/c)^b)^g
+//!
+//! Linear and quadratic fits are solved by QR on a Vandermonde matrix whose x column
+//! is divided by the largest |conc|: the raw coefficients come back exactly by dividing
+//! by powers of that scale, and the conditioning is that of x in [−1, 1] (the NIST
+//! Pontius set loses about six digits through the normal equations). 4PL and 5PL go
+//! through the Levenberg–Marquardt core in [`super::lm`] from automatic starting
+//! values, keeping c > 0 and g > 0.
+//!
+//! Weights (1/x, 1/x², 1/y, 1/y²) use the calibrator's assigned concentration and its
+//! observed signal. RSS is weighted where weighted; R² = 1 − RSS/TSS with TSS about the
+//! (weighted) mean signal, also for fits through the origin.
+
+use nalgebra::{DMatrix, DVector};
+use serde::{Deserialize, Serialize};
+use std::fmt;
+
+use super::lm::{self, CurveModel, CurveProblem, Settings};
+
+/// Which calibration function.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub enum ModelKind {
+    #[serde(rename = "factor")]
+    Factor,
+    #[serde(rename = "linear")]
+    Linear,
+    #[serde(rename = "linear-through-origin")]
+    LinearThroughOrigin,
+    #[serde(rename = "quadratic")]
+    Quadratic,
+    #[serde(rename = "4pl")]
+    FourPl,
+    #[serde(rename = "5pl")]
+    FivePl,
+}
+
+impl ModelKind {
+    pub const ALL: [ModelKind; 6] = [
+        ModelKind::Factor,
+        ModelKind::Linear,
+        ModelKind::LinearThroughOrigin,
+        ModelKind::Quadratic,
+        ModelKind::FourPl,
+        ModelKind::FivePl,
+    ];
+
+    /// The name used in files and on the command line.
+    pub fn code(self) -> &'static str {
+        match self {
+            ModelKind::Factor => "factor",
+            ModelKind::Linear => "linear",
+            ModelKind::LinearThroughOrigin => "linear-through-origin",
+            ModelKind::Quadratic => "quadratic",
+            ModelKind::FourPl => "4pl",
+            ModelKind::FivePl => "5pl",
+        }
+    }
+
+    pub fn from_code(s: &str) -> Option<ModelKind> {
+        ModelKind::ALL.into_iter().find(|m| m.code() == s)
+    }
+
+    /// Parameter names in order, as they appear in `params`.
+    pub fn param_names(self) -> &'static [&'static str] {
+        match self {
+            ModelKind::Factor => &["factor"],
+            ModelKind::Linear | ModelKind::LinearThroughOrigin => &["slope", "intercept"],
+            ModelKind::Quadratic => &["c0", "c1", "c2"],
+            ModelKind::FourPl => &["a", "b", "c", "d"],
+            ModelKind::FivePl => &["a", "b", "c", "d", "g"],
+        }
+    }
+
+    /// How many distinct calibrator concentrations the model needs at least.
+    fn min_levels(self) -> usize {
+        match self {
+            ModelKind::Factor | ModelKind::LinearThroughOrigin => 1,
+            ModelKind::Linear => 2,
+            ModelKind::Quadratic => 3,
+            ModelKind::FourPl => 4,
+            ModelKind::FivePl => 5,
+        }
+    }
+}
+
+/// Weighting of the least-squares fit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+pub enum Weighting {
+    #[default]
+    #[serde(rename = "none")]
+    None,
+    #[serde(rename = "1/x")]
+    InvX,
+    #[serde(rename = "1/x2")]
+    InvX2,
+    #[serde(rename = "1/y")]
+    InvY,
+    #[serde(rename = "1/y2")]
+    InvY2,
+}
+
+impl Weighting {
+    pub fn code(self) -> &'static str {
+        match self {
+            Weighting::None => "none",
+            Weighting::InvX => "1/x",
+            Weighting::InvX2 => "1/x2",
+            Weighting::InvY => "1/y",
+            Weighting::InvY2 => "1/y2",
+        }
+    }
+    pub fn from_code(s: &str) -> Option<Weighting> {
+        [
+            Weighting::None,
+            Weighting::InvX,
+            Weighting::InvX2,
+            Weighting::InvY,
+            Weighting::InvY2,
+        ]
+        .into_iter()
+        .find(|w| w.code() == s)
+    }
+}
+
+/// Whether replicate readings of a calibrator enter the fit one by one or as their mean.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum ReplicateUse {
+    #[default]
+    Individual,
+    Mean,
+}
+
+/// One calibrator reading: assigned concentration and the (blank-corrected) signal.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct CalPoint {
+    pub conc: f64,
+    pub signal: f64,
+}
+
+/// A fitted calibration function.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "model", rename_all = "kebab-case")]
+pub enum Curve {
+    /// conc = factor · signal
+    Factor { factor: f64 },
+    /// signal = intercept + slope · conc (intercept 0 for a fit through the origin)
+    Linear { slope: f64, intercept: f64 },
+    /// signal = c0 + c1·conc + c2·conc²
+    Quadratic { c0: f64, c1: f64, c2: f64 },
+    /// signal = d + (a − d) / (1 + (conc/c)^b)
+    FourPl { a: f64, b: f64, c: f64, d: f64 },
+    /// signal = d + (a − d) / (1 + (conc/c)^b)^g
+    FivePl {
+        a: f64,
+        b: f64,
+        c: f64,
+        d: f64,
+        g: f64,
+    },
+}
+
+/// Why a concentration could not be read off the curve as a plain number.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum ConcFlag {
+    /// Below the lowest calibrator: report as "less than" or per the lab's policy.
+    BelowRange,
+    /// Above the highest calibrator or the linearity limit: dilute and repeat.
+    AboveRange,
+    /// The signal lies outside what the curve can produce (beyond an asymptote, or no
+    /// real root).
+    NoSolution,
+}
+
+impl ConcFlag {
+    pub fn code(self) -> &'static str {
+        match self {
+            ConcFlag::BelowRange => "below-range",
+            ConcFlag::AboveRange => "above-range",
+            ConcFlag::NoSolution => "no-solution",
+        }
+    }
+}
+
+/// The concentration range in which results may be reported.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct ReportableRange {
+    pub low: f64,
+    pub high: f64,
+}
+
+/// A concentration read off the curve.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Reading {
+    pub conc: Option<f64>,
+    pub flag: Option<ConcFlag>,
+}
+
+impl Curve {
+    /// Build a curve from named parameters (as in a saved calibration or a CLI request).
+    pub fn from_params(
+        model: ModelKind,
+        get: impl Fn(&str) -> Option<f64>,
+    ) -> Result<Curve, CalibrationError> {
+        let need = |name: &str| {
+            get(name).filter(|v| v.is_finite()).ok_or_else(|| {
+                CalibrationError::new(
+                    CalErrorKind::BadParameter,
+                    format!(
+                        "params.{name} is missing or not a finite number; a {} curve needs {}",
+                        model.code(),
+                        model.param_names().join(", ")
+                    ),
+                )
+            })
+        };
+        Ok(match model {
+            ModelKind::Factor => Curve::Factor {
+                factor: need("factor")?,
+            },
+            ModelKind::Linear => Curve::Linear {
+                slope: need("slope")?,
+                intercept: need("intercept")?,
+            },
+            ModelKind::LinearThroughOrigin => Curve::Linear {
+                slope: need("slope")?,
+                intercept: get("intercept").unwrap_or(0.0),
+            },
+            ModelKind::Quadratic => Curve::Quadratic {
+                c0: need("c0")?,
+                c1: need("c1")?,
+                c2: need("c2")?,
+            },
+            ModelKind::FourPl => {
+                let c = need("c")?;
+                if c <= 0.0 {
+                    return Err(CalibrationError::new(
+                        CalErrorKind::BadParameter,
+                        "params.c (the 4PL mid-point) must be above 0",
+                    ));
+                }
+                Curve::FourPl {
+                    a: need("a")?,
+                    b: need("b")?,
+                    c,
+                    d: need("d")?,
+                }
+            }
+            ModelKind::FivePl => {
+                let (c, g) = (need("c")?, need("g")?);
+                if c <= 0.0 || g <= 0.0 {
+                    return Err(CalibrationError::new(
+                        CalErrorKind::BadParameter,
+                        "params.c and params.g of a 5PL curve must be above 0",
+                    ));
+                }
+                Curve::FivePl {
+                    a: need("a")?,
+                    b: need("b")?,
+                    c,
+                    d: need("d")?,
+                    g,
+                }
+            }
+        })
+    }
+
+    /// Parameters in the order of [`ModelKind::param_names`].
+    pub fn param_values(&self) -> Vec<f64> {
+        match *self {
+            Curve::Factor { factor } => vec![factor],
+            Curve::Linear { slope, intercept } => vec![slope, intercept],
+            Curve::Quadratic { c0, c1, c2 } => vec![c0, c1, c2],
+            Curve::FourPl { a, b, c, d } => vec![a, b, c, d],
+            Curve::FivePl { a, b, c, d, g } => vec![a, b, c, d, g],
+        }
+    }
+
+    /// Expected signal at a concentration.
+    pub fn signal_at(&self, conc: f64) -> f64 {
+        match *self {
+            Curve::Factor { factor } => conc / factor,
+            Curve::Linear { slope, intercept } => intercept + slope * conc,
+            Curve::Quadratic { c0, c1, c2 } => c0 + c1 * conc + c2 * conc * conc,
+            Curve::FourPl { a, b, c, d } => {
+                d + (a - d) / (1.0 + logistic_u(conc, b, c).unwrap_or(f64::NAN))
+            }
+            Curve::FivePl { a, b, c, d, g } => {
+                d + (a - d) / (1.0 + logistic_u(conc, b, c).unwrap_or(f64::NAN)).powf(g)
+            }
+        }
+    }
+
+    /// Concentration for a signal, without range checks; `None` if the curve cannot
+    /// produce that signal. `near` picks the branch of a quadratic (the middle of the
+    /// calibrated range).
+    pub fn conc_at(&self, signal: f64, near: f64) -> Option<f64> {
+        let conc = match *self {
+            Curve::Factor { factor } => factor * signal,
+            Curve::Linear { slope, intercept } => {
+                if slope == 0.0 {
+                    return None;
+                }
+                (signal - intercept) / slope
+            }
+            Curve::Quadratic { c0, c1, c2 } => return quadratic_root(c0 - signal, c1, c2, near),
+            Curve::FourPl { a, b, c, d } => {
+                let q = (a - d) / (signal - d) - 1.0;
+                logistic_x(q, b, c, signal, a)?
+            }
+            Curve::FivePl { a, b, c, d, g } => {
+                let ratio = (a - d) / (signal - d);
+                if !(ratio > 0.0) {
+                    return None;
+                }
+                let q = ratio.powf(1.0 / g) - 1.0;
+                logistic_x(q, b, c, signal, a)?
+            }
+        };
+        conc.is_finite().then_some(conc)
+    }
+
+    /// Concentration with its flag against the reportable range.
+    pub fn read(&self, signal: f64, range: ReportableRange) -> Reading {
+        let near = 0.5 * (range.low + range.high);
+        match self.conc_at(signal, near) {
+            None => Reading {
+                conc: None,
+                flag: Some(ConcFlag::NoSolution),
+            },
+            Some(conc) => {
+                let eps = 1e-9 * (range.low.abs() + range.high.abs()).max(f64::MIN_POSITIVE);
+                let flag = if conc < range.low - eps {
+                    Some(ConcFlag::BelowRange)
+                } else if conc > range.high + eps {
+                    Some(ConcFlag::AboveRange)
+                } else {
+                    None
+                };
+                Reading {
+                    conc: Some(conc),
+                    flag,
+                }
+            }
+        }
+    }
+}
+
+/// (conc/c)^b, defined for conc ≥ 0 and c > 0; at conc = 0 only for b > 0.
+fn logistic_u(conc: f64, b: f64, c: f64) -> Option<f64> {
+    if c <= 0.0 || conc < 0.0 || !conc.is_finite() {
+        return None;
+    }
+    if conc == 0.0 {
+        return (b > 0.0).then_some(0.0);
+    }
+    Some((conc / c).powf(b))
+}
+
+/// Solve (x/c)^b = q for x ≥ 0; `q` = 0 means the zero-concentration asymptote.
+fn logistic_x(q: f64, b: f64, c: f64, signal: f64, a: f64) -> Option<f64> {
+    if signal == a && b > 0.0 {
+        return Some(0.0);
+    }
+    if !(q > 0.0) || !q.is_finite() || b == 0.0 {
+        return None;
+    }
+    let x = c * q.powf(1.0 / b);
+    x.is_finite().then_some(x)
+}
+
+/// Real root of c2 x² + c1 x + c0 = 0 on the branch nearest `near`.
+fn quadratic_root(c0: f64, c1: f64, c2: f64, near: f64) -> Option<f64> {
+    if c2 == 0.0 || (c2 * near * near).abs() < 1e-14 * (c1 * near).abs() {
+        return (c1 != 0.0).then(|| -c0 / c1);
+    }
+    let disc = c1 * c1 - 4.0 * c2 * c0;
+    if disc < 0.0 {
+        return None;
+    }
+    // Numerically stable pair of roots.
+    let sign = if c1 >= 0.0 { 1.0 } else { -1.0 };
+    let q = -0.5 * (c1 + sign * disc.sqrt());
+    let roots = if q == 0.0 {
+        vec![0.0]
+    } else {
+        vec![q / c2, c0 / q]
+    };
+    // The calibrated branch: the same side of the vertex as `near`.
+    let vertex = -c1 / (2.0 * c2);
+    let side = (near - vertex).signum();
+    roots
+        .iter()
+        .copied()
+        .filter(|r| r.is_finite())
+        .min_by(|x, y| {
+            let kx = ((x - vertex).signum() != side, (x - near).abs());
+            let ky = ((y - vertex).signum() != side, (y - near).abs());
+            kx.partial_cmp(&ky).unwrap_or(std::cmp::Ordering::Equal)
+        })
+}
+
+/// What kind of problem stopped a fit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CalErrorKind {
+    /// Fewer calibrators than the model needs.
+    TooFewPoints,
+    /// A concentration or signal that is not a usable number.
+    BadValue,
+    /// A weight that cannot be formed (1/x at conc 0, 1/y at a signal ≤ 0).
+    BadWeight,
+    /// All signals are the same: no curve can be fitted.
+    FlatSignal,
+    /// The iterative fit did not settle on a solution.
+    NoConvergence,
+    /// The data do not determine the parameters (e.g. all points at one concentration).
+    Undetermined,
+    /// A parameter supplied from outside is missing or out of bounds.
+    BadParameter,
+}
+
+/// A calibration that could not be fitted, with what to do about it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CalibrationError {
+    pub kind: CalErrorKind,
+    pub message: String,
+}
+
+impl CalibrationError {
+    fn new(kind: CalErrorKind, message: impl Into<String>) -> Self {
+        CalibrationError {
+            kind,
+            message: message.into(),
+        }
+    }
+}
+
+impl fmt::Display for CalibrationError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(&self.message)
+    }
+}
+
+impl std::error::Error for CalibrationError {}
+
+/// One calibrator as the fit used it.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct FittedPoint {
+    pub conc: f64,
+    pub signal: f64,
+    /// Signal the curve gives at `conc`.
+    pub fitted: f64,
+    /// Concentration the curve gives for `signal`.
+    pub back_calculated: Option<f64>,
+    /// back_calculated / conc × 100; `None` at conc 0.
+    pub recovery_pct: Option<f64>,
+}
+
+/// A fitted calibration with its diagnostics.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Fit {
+    pub model: ModelKind,
+    pub weighting: Weighting,
+    pub curve: Curve,
+    /// Standard error per parameter (order of [`ModelKind::param_names`]); `None` where
+    /// the data leave no degrees of freedom or the parameter is fixed.
+    pub std_errors: Vec<Option<f64>>,
+    /// Residual sum of squares (weighted where weighted).
+    pub rss: f64,
+    pub r_squared: Option<f64>,
+    pub points: Vec<FittedPoint>,
+    /// Residual evaluations used by the iterative fit (0 for closed-form fits).
+    pub evaluations: usize,
+}
+
+impl Fit {
+    /// Lowest and highest calibrator concentration.
+    pub fn calibrated_range(&self) -> ReportableRange {
+        let low = self
+            .points
+            .iter()
+            .map(|p| p.conc)
+            .fold(f64::INFINITY, f64::min);
+        let high = self
+            .points
+            .iter()
+            .map(|p| p.conc)
+            .fold(f64::NEG_INFINITY, f64::max);
+        ReportableRange { low, high }
+    }
+}
+
+/// Average replicate readings at the same concentration (order of first appearance).
+pub fn average_replicates(points: &[CalPoint]) -> Vec<CalPoint> {
+    let mut groups: Vec<(f64, f64, usize)> = Vec::new();
+    for p in points {
+        match groups.iter_mut().find(|g| g.0 == p.conc) {
+            Some(g) => {
+                g.1 += p.signal;
+                g.2 += 1;
+            }
+            None => groups.push((p.conc, p.signal, 1)),
+        }
+    }
+    groups
+        .into_iter()
+        .map(|(conc, sum, n)| CalPoint {
+            conc,
+            signal: sum / n as f64,
+        })
+        .collect()
+}
+
+/// Fit `model` to the calibrator readings.
+pub fn fit(
+    model: ModelKind,
+    weighting: Weighting,
+    replicates: ReplicateUse,
+    points: &[CalPoint],
+) -> Result<Fit, CalibrationError> {
+    for (i, p) in points.iter().enumerate() {
+        if !p.conc.is_finite() || !p.signal.is_finite() {
+            return Err(CalibrationError::new(
+                CalErrorKind::BadValue,
+                format!("point {}: concentration and signal must be numbers", i + 1),
+            ));
+        }
+        if p.conc < 0.0 {
+            return Err(CalibrationError::new(
+                CalErrorKind::BadValue,
+                format!(
+                    "point {}: concentration {} is below 0; enter the calibrator's assigned value",
+                    i + 1,
+                    p.conc
+                ),
+            ));
+        }
+    }
+    let pts = match replicates {
+        ReplicateUse::Individual => points.to_vec(),
+        ReplicateUse::Mean => average_replicates(points),
+    };
+    let mut levels: Vec<f64> = pts.iter().map(|p| p.conc).collect();
+    levels.sort_by(f64::total_cmp);
+    levels.dedup();
+    let nonzero_levels = levels.iter().filter(|&&c| c > 0.0).count();
+    let enough = match model {
+        ModelKind::Factor | ModelKind::LinearThroughOrigin => nonzero_levels >= 1,
+        _ => levels.len() >= model.min_levels(),
+    };
+    if pts.is_empty() || !enough {
+        return Err(CalibrationError::new(
+            CalErrorKind::TooFewPoints,
+            format!(
+                "a {} calibration needs at least {} different calibrator concentration{}{}; \
+                 this one has {}",
+                model.code(),
+                model.min_levels(),
+                if model.min_levels() == 1 { "" } else { "s" },
+                if matches!(model, ModelKind::Factor | ModelKind::LinearThroughOrigin) {
+                    " above 0"
+                } else {
+                    ""
+                },
+                levels.len()
+            ),
+        ));
+    }
+    let (smin, smax) = pts
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), p| {
+            (lo.min(p.signal), hi.max(p.signal))
+        });
+    if levels.len() > 1 && (smax - smin) <= 1e-12 * smax.abs().max(smin.abs()) {
+        return Err(CalibrationError::new(
+            CalErrorKind::FlatSignal,
+            format!(
+                "every calibrator gave the same signal ({smin}); check the reagent and the \
+                 photometer, then measure the calibrators again"
+            ),
+        ));
+    }
+    let weights = weights_for(weighting, &pts)?;
+    let x: Vec<f64> = pts.iter().map(|p| p.conc).collect();
+    let y: Vec<f64> = pts.iter().map(|p| p.signal).collect();
+
+    let (curve, std_errors, evaluations) = match model {
+        ModelKind::Factor => {
+            let ls = polynomial(&x, &y, weights.as_deref(), 1, false)?;
+            let slope = ls.coef[0];
+            if slope == 0.0 {
+                return Err(CalibrationError::new(
+                    CalErrorKind::FlatSignal,
+                    "the calibrator signal is 0",
+                ));
+            }
+            let se = ls.se.map(|s| s[0] / (slope * slope));
+            (
+                Curve::Factor {
+                    factor: 1.0 / slope,
+                },
+                vec![se],
+                0,
+            )
+        }
+        ModelKind::Linear => {
+            let ls = polynomial(&x, &y, weights.as_deref(), 1, true)?;
+            let se = ls.se.as_ref();
+            (
+                Curve::Linear {
+                    slope: ls.coef[1],
+                    intercept: ls.coef[0],
+                },
+                vec![se.map(|s| s[1]), se.map(|s| s[0])],
+                0,
+            )
+        }
+        ModelKind::LinearThroughOrigin => {
+            let ls = polynomial(&x, &y, weights.as_deref(), 1, false)?;
+            (
+                Curve::Linear {
+                    slope: ls.coef[0],
+                    intercept: 0.0,
+                },
+                vec![ls.se.map(|s| s[0]), None],
+                0,
+            )
+        }
+        ModelKind::Quadratic => {
+            let ls = polynomial(&x, &y, weights.as_deref(), 2, true)?;
+            let se = ls.se.as_ref();
+            (
+                Curve::Quadratic {
+                    c0: ls.coef[0],
+                    c1: ls.coef[1],
+                    c2: ls.coef[2],
+                },
+                (0..3).map(|k| se.map(|s| s[k])).collect(),
+                0,
+            )
+        }
+        ModelKind::FourPl | ModelKind::FivePl => logistic_fit(model, &x, &y, weights.as_deref())?,
+    };
+
+    let w = |i: usize| weights.as_ref().map_or(1.0, |w| w[i]);
+    let fitted: Vec<f64> = x.iter().map(|&c| curve.signal_at(c)).collect();
+    let rss: f64 = (0..y.len())
+        .map(|i| w(i) * (y[i] - fitted[i]).powi(2))
+        .sum();
+    let wsum: f64 = (0..y.len()).map(w).sum();
+    let ybar = (0..y.len()).map(|i| w(i) * y[i]).sum::<f64>() / wsum;
+    let tss: f64 = (0..y.len()).map(|i| w(i) * (y[i] - ybar).powi(2)).sum();
+    let r_squared = (tss > 0.0 && y.len() > 1).then(|| 1.0 - rss / tss);
+    let near = 0.5 * (levels[0] + levels[levels.len() - 1]);
+    let points = pts
+        .iter()
+        .zip(&fitted)
+        .map(|(p, &f)| {
+            let back = curve.conc_at(p.signal, near);
+            FittedPoint {
+                conc: p.conc,
+                signal: p.signal,
+                fitted: f,
+                back_calculated: back,
+                recovery_pct: back.filter(|_| p.conc > 0.0).map(|b| b / p.conc * 100.0),
+            }
+        })
+        .collect();
+    Ok(Fit {
+        model,
+        weighting,
+        curve,
+        std_errors,
+        rss,
+        r_squared,
+        points,
+        evaluations,
+    })
+}
+
+fn weights_for(
+    weighting: Weighting,
+    pts: &[CalPoint],
+) -> Result<Option<Vec<f64>>, CalibrationError> {
+    let (by_x, power) = match weighting {
+        Weighting::None => return Ok(None),
+        Weighting::InvX => (true, 1),
+        Weighting::InvX2 => (true, 2),
+        Weighting::InvY => (false, 1),
+        Weighting::InvY2 => (false, 2),
+    };
+    pts.iter()
+        .enumerate()
+        .map(|(i, p)| {
+            let v = if by_x { p.conc } else { p.signal };
+            if v <= 0.0 {
+                Err(CalibrationError::new(
+                    CalErrorKind::BadWeight,
+                    format!(
+                        "point {}: {} weighting needs a {} above 0 (it is {v}); remove that \
+                         calibrator or choose another weighting",
+                        i + 1,
+                        weighting.code(),
+                        if by_x { "concentration" } else { "signal" }
+                    ),
+                ))
+            } else {
+                Ok(1.0 / v.powi(power))
+            }
+        })
+        .collect::<Result<Vec<_>, _>>()
+        .map(Some)
+}
+
+struct Polynomial {
+    /// Coefficients of 1, x, x², … (without the constant when it is not fitted).
+    coef: Vec<f64>,
+    se: Option<Vec<f64>>,
+}
+
+/// Weighted least-squares polynomial of `degree` by QR on a scaled Vandermonde matrix.
+fn polynomial(
+    x: &[f64],
+    y: &[f64],
+    w: Option<&[f64]>,
+    degree: usize,
+    constant: bool,
+) -> Result<Polynomial, CalibrationError> {
+    let powers: Vec<i32> = (if constant { 0 } else { 1 }..=degree as i32).collect();
+    let m = x.len();
+    let n = powers.len();
+    let scale = x.iter().fold(0.0_f64, |a, &v| a.max(v.abs()));
+    if scale == 0.0 || m < n {
+        return Err(CalibrationError::new(
+            CalErrorKind::Undetermined,
+            "the calibrators do not determine this curve: measure more concentrations",
+        ));
+    }
+    let mut a = DMatrix::zeros(m, n);
+    let mut b = DVector::zeros(m);
+    for i in 0..m {
+        let rw = w.map_or(1.0, |w| w[i].sqrt());
+        let t = x[i] / scale;
+        for (j, &p) in powers.iter().enumerate() {
+            a[(i, j)] = rw * t.powi(p);
+        }
+        b[i] = rw * y[i];
+    }
+    let qr = a.qr();
+    let r = qr.r();
+    let q = qr.q();
+    let rmax = (0..n).map(|k| r[(k, k)].abs()).fold(0.0, f64::max);
+    if (0..n).any(|k| r[(k, k)].abs() <= 1e-13 * rmax) {
+        return Err(CalibrationError::new(
+            CalErrorKind::Undetermined,
+            "the calibrator concentrations do not determine this curve (too few distinct \
+             concentrations); measure more levels or choose a simpler model",
+        ));
+    }
+    let qtb = q.transpose() * &b;
+    let scaled = r.solve_upper_triangular(&qtb).ok_or_else(|| {
+        CalibrationError::new(
+            CalErrorKind::Undetermined,
+            "the least-squares system is singular",
+        )
+    })?;
+    let unscale = |j: usize| scale.powi(powers[j]);
+    let coef_scaled: Vec<f64> = (0..n).map(|j| scaled[j]).collect();
+    let coef: Vec<f64> = (0..n).map(|j| coef_scaled[j] / unscale(j)).collect();
+    let se = if m > n {
+        let resid = &b - &q * (&r * &scaled);
+        let s2 = resid.norm_squared() / (m - n) as f64;
+        r.clone().try_inverse().map(|rinv| {
+            (0..n)
+                .map(|j| (s2 * rinv.row(j).norm_squared()).sqrt() / unscale(j))
+                .collect()
+        })
+    } else {
+        None
+    };
+    Ok(Polynomial { coef, se })
+}
+
+/// The 4PL / 5PL model for the LM core: p = [a, b, c, d] or [a, b, c, d, g].
+struct Logistic {
+    five: bool,
+}
+
+impl CurveModel for Logistic {
+    fn n_params(&self) -> usize {
+        if self.five {
+            5
+        } else {
+            4
+        }
+    }
+    fn value(&self, x: f64, p: &[f64]) -> Option<f64> {
+        let (a, b, c, d) = (p[0], p[1], p[2], p[3]);
+        let g = if self.five { p[4] } else { 1.0 };
+        if g <= 0.0 {
+            return None;
+        }
+        let u = logistic_u(x, b, c)?;
+        let v = d + (a - d) / (1.0 + u).powf(g);
+        v.is_finite().then_some(v)
+    }
+    fn gradient(&self, x: f64, p: &[f64], grad: &mut [f64]) -> Option<()> {
+        let (a, b, c, d) = (p[0], p[1], p[2], p[3]);
+        let g = if self.five { p[4] } else { 1.0 };
+        if g <= 0.0 {
+            return None;
+        }
+        let u = logistic_u(x, b, c)?;
+        let den = 1.0 + u;
+        let dg = den.powf(-g);
+        grad[0] = dg;
+        grad[3] = 1.0 - dg;
+        if u == 0.0 {
+            grad[1] = 0.0;
+            grad[2] = 0.0;
+        } else {
+            let common = (a - d) * g * den.powf(-g - 1.0) * u;
+            grad[1] = -common * (x / c).ln();
+            grad[2] = common * b / c;
+        }
+        if self.five {
+            grad[4] = -(a - d) * dg * den.ln();
+        }
+        grad.iter().all(|v| v.is_finite()).then_some(())
+    }
+}
+
+/// Starting values for a 4PL from the data: asymptotes just beyond the extreme mean
+/// signals, c where the signal crosses half-way (log-interpolated), b from the
+/// logit-log regression of the points in between.
+fn logistic_start(x: &[f64], y: &[f64]) -> [f64; 4] {
+    let pts = average_replicates(
+        &x.iter()
+            .zip(y)
+            .map(|(&conc, &signal)| CalPoint { conc, signal })
+            .collect::<Vec<_>>(),
+    );
+    let mut pts = pts;
+    pts.sort_by(|p, q| p.conc.total_cmp(&q.conc));
+    let lo = pts[0].signal;
+    let hi = pts[pts.len() - 1].signal;
+    let span = hi - lo;
+    let a = lo - 0.05 * span;
+    let d = hi + 0.05 * span;
+    let half = 0.5 * (lo + hi);
+    let positive: Vec<&CalPoint> = pts.iter().filter(|p| p.conc > 0.0).collect();
+    let mut c =
+        (positive.iter().map(|p| p.conc.ln()).sum::<f64>() / positive.len().max(1) as f64).exp();
+    for pair in positive.windows(2) {
+        let (p, q) = (pair[0], pair[1]);
+        if (p.signal - half) * (q.signal - half) <= 0.0 && p.signal != q.signal {
+            let t = (half - p.signal) / (q.signal - p.signal);
+            c = (p.conc.ln() + t * (q.conc.ln() - p.conc.ln())).exp();
+            break;
+        }
+    }
+    // logit: ln((a − y)/(y − d)) = b ln x − b ln c
+    let (mut sx, mut sy, mut sxx, mut sxy, mut k) = (0.0, 0.0, 0.0, 0.0, 0.0);
+    for p in &positive {
+        let ratio = (a - p.signal) / (p.signal - d);
+        if ratio > 0.0 && ratio.is_finite() {
+            let lx = p.conc.ln();
+            let ly = ratio.ln();
+            sx += lx;
+            sy += ly;
+            sxx += lx * lx;
+            sxy += lx * ly;
+            k += 1.0;
+        }
+    }
+    let mut b = 1.0;
+    if k >= 2.0 {
+        let den = k * sxx - sx * sx;
+        if den > 0.0 {
+            let slope = (k * sxy - sx * sy) / den;
+            if slope.is_finite() && slope > 0.05 {
+                b = slope.min(20.0);
+            }
+        }
+    }
+    [a, b, c, d]
+}
+
+fn logistic_fit(
+    model: ModelKind,
+    x: &[f64],
+    y: &[f64],
+    w: Option<&[f64]>,
+) -> Result<(Curve, Vec<Option<f64>>, usize), CalibrationError> {
+    let settings = Settings {
+        ftol: 1e-14,
+        xtol: 1e-14,
+        gtol: 1e-14,
+        max_evaluations: 5_000,
+    };
+    let four = Logistic { five: false };
+    let problem4 = CurveProblem {
+        model: &four,
+        x,
+        y,
+        weights: w,
+    };
+    let base = logistic_start(x, y);
+    let mut evaluations = 0;
+    let mut best: Option<lm::Report> = None;
+    let mut last_reason = lm::Termination::BadStart;
+    let mut consider = |rep: lm::Report, best: &mut Option<lm::Report>| {
+        evaluations += rep.evaluations;
+        last_reason = rep.termination;
+        if rep.termination.converged() && best.as_ref().is_none_or(|b| rep.rss < b.rss) {
+            *best = Some(rep);
+        }
+    };
+    // A few starts around the data-driven one: the logistic surface has flat valleys.
+    let starts = [
+        base,
+        [base[0], base[1] * 0.5, base[2], base[3]],
+        [base[0], base[1] * 2.0, base[2], base[3]],
+        [base[0], base[1], base[2] * 0.5, base[3]],
+        [base[0], base[1], base[2] * 2.0, base[3]],
+    ];
+    for s in &starts {
+        consider(lm::solve(&problem4, s, &settings), &mut best);
+    }
+    if model == ModelKind::FivePl {
+        let five = Logistic { five: true };
+        let problem5 = CurveProblem {
+            model: &five,
+            x,
+            y,
+            weights: w,
+        };
+        let from = best.as_ref().map_or(base, |b| {
+            [b.params[0], b.params[1], b.params[2], b.params[3]]
+        });
+        best = None;
+        for g in [1.0, 0.5, 2.0, 0.25, 4.0] {
+            let s = [from[0], from[1], from[2], from[3], g];
+            consider(lm::solve(&problem5, &s, &settings), &mut best);
+        }
+    }
+    let Some(rep) = best else {
+        return Err(CalibrationError::new(
+            CalErrorKind::NoConvergence,
+            format!(
+                "the {} fit did not converge ({last_reason:?}); check the calibrator values and \
+                 readings, or use a model with fewer parameters",
+                model.code()
+            ),
+        ));
+    };
+    let p = &rep.params;
+    let curve = if model == ModelKind::FivePl {
+        Curve::FivePl {
+            a: p[0],
+            b: p[1],
+            c: p[2],
+            d: p[3],
+            g: p[4],
+        }
+    } else {
+        Curve::FourPl {
+            a: p[0],
+            b: p[1],
+            c: p[2],
+            d: p[3],
+        }
+    };
+    let se = lm::standard_errors(&rep.jacobian, rep.rss);
+    let std_errors = (0..p.len()).map(|j| se.as_ref().map(|s| s[j])).collect();
+    Ok((curve, std_errors, evaluations))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn pts(v: &[(f64, f64)]) -> Vec<CalPoint> {
+        v.iter()
+            .map(|&(conc, signal)| CalPoint { conc, signal })
+            .collect()
+    }
+
+    /// Worked arithmetic: calibrator 100 mg/dL reading ΔA 0.250 and 0.254 gives
+    /// F = 100 / 0.252 = 396.825… (the single-point factor, C_cal / ΔA_cal).
+    #[test]
+    fn factor_is_concentration_over_mean_signal() {
+        let f = fit(
+            ModelKind::Factor,
+            Weighting::None,
+            ReplicateUse::Individual,
+            &pts(&[(100.0, 0.250), (100.0, 0.254)]),
+        )
+        .unwrap();
+        let Curve::Factor { factor } = f.curve else {
+            panic!()
+        };
+        assert!((factor - 100.0 / 0.252).abs() < 1e-9);
+        assert!((f.curve.conc_at(0.126, 50.0).unwrap() - 50.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn too_few_and_flat_are_clear_errors() {
+        let e = fit(
+            ModelKind::FourPl,
+            Weighting::None,
+            ReplicateUse::Individual,
+            &pts(&[(1.0, 0.1), (2.0, 0.2)]),
+        )
+        .unwrap_err();
+        assert_eq!(e.kind, CalErrorKind::TooFewPoints);
+        assert!(e.message.contains("at least 4"), "{}", e.message);
+        let e = fit(
+            ModelKind::Linear,
+            Weighting::None,
+            ReplicateUse::Individual,
+            &pts(&[(1.0, 0.3), (2.0, 0.3), (3.0, 0.3)]),
+        )
+        .unwrap_err();
+        assert_eq!(e.kind, CalErrorKind::FlatSignal);
+        let e = fit(
+            ModelKind::Linear,
+            Weighting::InvX,
+            ReplicateUse::Individual,
+            &pts(&[(0.0, 0.0), (2.0, 0.3)]),
+        )
+        .unwrap_err();
+        assert_eq!(e.kind, CalErrorKind::BadWeight);
+        assert!(e.message.contains("point 1"));
+    }
+
+    /// 4PL inverse: conc = c · ((a − d)/(s − d) − 1)^(1/b); a signal beyond an
+    /// asymptote has no solution.
+    #[test]
+    fn logistic_inverse_and_asymptotes() {
+        let curve = Curve::FourPl {
+            a: 0.05,
+            b: 1.5,
+            c: 10.0,
+            d: 2.0,
+        };
+        for conc in [0.5, 3.0, 10.0, 40.0] {
+            let s = curve.signal_at(conc);
+            assert!((curve.conc_at(s, 10.0).unwrap() - conc).abs() < 1e-9 * conc);
+        }
+        assert!((curve.signal_at(10.0) - 1.025).abs() < 1e-12); // half-way at c
+        assert_eq!(curve.conc_at(2.5, 10.0), None);
+        assert_eq!(curve.conc_at(0.01, 10.0), None);
+        let r = curve.read(
+            curve.signal_at(60.0),
+            ReportableRange {
+                low: 1.0,
+                high: 50.0,
+            },
+        );
+        assert_eq!(r.flag, Some(ConcFlag::AboveRange));
+        let five = Curve::FivePl {
+            a: 0.05,
+            b: 1.5,
+            c: 10.0,
+            d: 2.0,
+            g: 0.7,
+        };
+        let s = five.signal_at(7.0);
+        assert!((five.conc_at(s, 10.0).unwrap() - 7.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn quadratic_inverse_takes_calibrated_branch() {
+        // signal = 0.01 + 0.02 x − 0.0001 x², vertex at x = 100; calibrated 0..60.
+        let q = Curve::Quadratic {
+            c0: 0.01,
+            c1: 0.02,
+            c2: -0.0001,
+        };
+        let s = q.signal_at(40.0);
+        assert!((q.conc_at(s, 30.0).unwrap() - 40.0).abs() < 1e-9);
+        assert_eq!(q.conc_at(5.0, 30.0), None);
+    }
+}
