@@ -1,6 +1,8 @@
 //! Cuvette: the bench of a small clinical chemistry lab, in one offline HTML file.
 //!
 //! `engine` is the plain-Rust calculation core (also used by the `cuvette-calc`
-//! command-line calculator); `store` and `ui` are the thin browser shell.
+//! command-line calculator); `lab` is the record data; `store` and `ui` are the thin
+//! browser shell.
 
 pub mod engine;
+pub mod lab;

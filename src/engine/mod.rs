@@ -2,8 +2,9 @@
 //! here and is tested natively with `cargo test`.
 //!
 //! **Invariant:** nothing under `src/engine/` imports leptos, web-sys, wasm-bindgen,
-//! js-sys, gloo or plotters, and nothing here reads or writes storage. Callers pass
-//! values in (including "now" and the lab's time zone) and get values back.
+//! js-sys, gloo or plotters, and nothing here reads or writes storage or a clock.
+//! Callers pass values in (including "now" and the lab's time zone) and get values back.
 
 pub mod calibration;
 pub mod lm;
+pub mod stability;

@@ -1,0 +1,217 @@
+//! The lab's records as plain data: what is saved, exported and imported.
+//!
+//! Every record carries a [`RecordMeta`]: a stable id (UUID), when it was created and
+//! last changed (UTC, ISO 8601 in files), and the initials of the technician who did
+//! it. Ids never change, so two PCs' exports can later be merged record by record.
+//! This module holds data only; calculations live in [`crate::engine`], storage in
+//! `crate::store`.
+
+use chrono::{DateTime, Utc};
+use serde::{Deserialize, Serialize};
+
+use crate::engine::calibration::{ModelKind, Weighting};
+
+/// The schema version written into every saved lab and export.
+pub const SCHEMA_VERSION: u32 = 1;
+
+/// Who made a record and when.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct RecordMeta {
+    pub id: String,
+    pub created_at: DateTime<Utc>,
+    pub changed_at: DateTime<Utc>,
+    /// Technician's initials.
+    pub by: String,
+}
+
+impl RecordMeta {
+    /// A new record made at `now` by `by`, with an id from 16 random bytes.
+    pub fn new(random: [u8; 16], now: DateTime<Utc>, by: &str) -> RecordMeta {
+        RecordMeta {
+            id: uuid::Builder::from_random_bytes(random)
+                .into_uuid()
+                .to_string(),
+            created_at: now,
+            changed_at: now,
+            by: by.trim().to_uppercase(),
+        }
+    }
+}
+
+/// How a test turns absorbance into a result.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum ReadingMode {
+    EndPoint,
+    FixedTime,
+    Kinetic,
+}
+
+/// A test the lab runs (glucose, ALT, …) and how it is calibrated.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TestSetup {
+    pub meta: RecordMeta,
+    /// Short code on the bench, e.g. "GLU".
+    pub code: String,
+    pub name: String,
+    /// UCUM unit of the result, e.g. "mg/dL", "U/L".
+    pub unit: String,
+    pub mode: ReadingMode,
+    pub model: ModelKind,
+    #[serde(default)]
+    pub weighting: Weighting,
+    /// Wavelength in nm.
+    pub wavelength_nm: f64,
+    /// Upper limit of linearity from the maker's instructions.
+    pub linearity_limit: Option<f64>,
+}
+
+/// One control level of one test, with its target.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ControlLevel {
+    pub meta: RecordMeta,
+    pub test_id: String,
+    /// "Normal", "Abnormal", "Level 1" …
+    pub name: String,
+    pub lot: String,
+    /// Target mean and SD (from the insert until the lab has its own).
+    pub mean: f64,
+    pub sd: f64,
+}
+
+/// One QC run of one test: the value measured for each control level (same order as
+/// `level_ids`; `None` where a level was not run).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ControlRun {
+    pub meta: RecordMeta,
+    pub test_id: String,
+    pub run_at: DateTime<Utc>,
+    pub level_ids: Vec<String>,
+    pub values: Vec<Option<f64>>,
+}
+
+/// A reagent, calibrator or control material in use.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct MaterialRecord {
+    pub meta: RecordMeta,
+    pub kind: MaterialKind,
+    pub name: String,
+    pub lot: String,
+    pub stability: crate::engine::stability::Material,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum MaterialKind {
+    Reagent,
+    Calibrator,
+    Control,
+}
+
+/// Everything one lab keeps.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Lab {
+    pub schema_version: u32,
+    pub lab_name: String,
+    /// True for the invented demo lab: the UI marks every screen "demo".
+    #[serde(default)]
+    pub demo: bool,
+    #[serde(default)]
+    pub tests: Vec<TestSetup>,
+    #[serde(default)]
+    pub control_levels: Vec<ControlLevel>,
+    #[serde(default)]
+    pub control_runs: Vec<ControlRun>,
+    #[serde(default)]
+    pub materials: Vec<MaterialRecord>,
+}
+
+impl Lab {
+    /// An empty lab with a name.
+    pub fn empty(lab_name: &str) -> Lab {
+        Lab {
+            schema_version: SCHEMA_VERSION,
+            lab_name: lab_name.to_string(),
+            demo: false,
+            tests: Vec::new(),
+            control_levels: Vec::new(),
+            control_runs: Vec::new(),
+            materials: Vec::new(),
+        }
+    }
+
+    /// Parse a lab from JSON, with a message naming what is wrong.
+    pub fn from_json(text: &str) -> Result<Lab, String> {
+        let lab: Lab = serde_json::from_str(text).map_err(|e| {
+            format!(
+                "this file is not a Cuvette lab (line {}, column {}): {e}",
+                e.line(),
+                e.column()
+            )
+        })?;
+        if lab.schema_version > SCHEMA_VERSION {
+            return Err(format!(
+                "this file was written by a newer Cuvette (schema {}; this one reads up to {}): \
+                 open it with the newer version",
+                lab.schema_version, SCHEMA_VERSION
+            ));
+        }
+        Ok(lab)
+    }
+
+    /// Control levels of a test, in the order they were set up.
+    pub fn levels_of(&self, test_id: &str) -> Vec<&ControlLevel> {
+        self.control_levels
+            .iter()
+            .filter(|l| l.test_id == test_id)
+            .collect()
+    }
+
+    /// QC runs of a test, oldest first.
+    pub fn runs_of(&self, test_id: &str) -> Vec<&ControlRun> {
+        let mut runs: Vec<&ControlRun> = self
+            .control_runs
+            .iter()
+            .filter(|r| r.test_id == test_id)
+            .collect();
+        runs.sort_by_key(|r| r.run_at);
+        runs
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn demo_lab_parses_and_is_marked_demo() {
+        let lab = Lab::from_json(include_str!("../demo-data/demo-lab.json")).expect("demo lab");
+        assert!(lab.demo, "the demo lab must be marked demo");
+        assert!(lab.lab_name.to_lowercase().contains("demo"));
+        assert!(!lab.tests.is_empty() && !lab.control_runs.is_empty());
+        let mut ids: Vec<&str> = lab.tests.iter().map(|t| t.meta.id.as_str()).collect();
+        ids.extend(lab.control_runs.iter().map(|r| r.meta.id.as_str()));
+        let n = ids.len();
+        ids.sort();
+        ids.dedup();
+        assert_eq!(ids.len(), n, "record ids must be unique");
+    }
+
+    #[test]
+    fn newer_schema_is_refused_with_a_reason() {
+        let text = r#"{"schema_version": 99, "lab_name": "x"}"#;
+        let err = Lab::from_json(text).unwrap_err();
+        assert!(err.contains("newer Cuvette"), "{err}");
+        let err = Lab::from_json("{ not json").unwrap_err();
+        assert!(err.contains("line 1"), "{err}");
+    }
+
+    #[test]
+    fn record_ids_are_uuid_v4() {
+        let now = Utc::now();
+        let m = RecordMeta::new([7; 16], now, " ab ");
+        assert_eq!(m.by, "AB");
+        assert_eq!(m.id.len(), 36);
+        assert_eq!(&m.id[14..15], "4");
+    }
+}
