@@ -6,3 +6,5 @@
 
 pub mod engine;
 pub mod lab;
+pub mod store;
+pub mod ui;

@@ -6,5 +6,6 @@
 //! Callers pass values in (including "now" and the lab's time zone) and get values back.
 
 pub mod calibration;
+pub mod charts;
 pub mod lm;
 pub mod stability;

@@ -1,0 +1,67 @@
+//! Series for charts, computed here so the drawing code only draws.
+//!
+//! A Levey–Jennings chart plots each control result in run order against the target
+//! mean with lines at ±1, ±2 and ±3 SD.
+
+/// One control level's Levey–Jennings chart.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LeveyJennings {
+    pub title: String,
+    pub mean: f64,
+    pub sd: f64,
+    /// (run number from 1, value); runs where the level was not measured are left out.
+    pub points: Vec<(f64, f64)>,
+    /// Number of runs on the x axis.
+    pub runs: usize,
+    /// y range: at least mean ± 4 SD, widened to show every point.
+    pub y_min: f64,
+    pub y_max: f64,
+}
+
+impl LeveyJennings {
+    /// Build the chart series; `None` when the SD is not a positive number.
+    pub fn new(title: &str, mean: f64, sd: f64, values: &[Option<f64>]) -> Option<LeveyJennings> {
+        if !(sd > 0.0 && sd.is_finite() && mean.is_finite()) {
+            return None;
+        }
+        let points: Vec<(f64, f64)> = values
+            .iter()
+            .enumerate()
+            .filter_map(|(i, v)| v.filter(|v| v.is_finite()).map(|v| ((i + 1) as f64, v)))
+            .collect();
+        let lo = points.iter().map(|p| p.1).fold(mean - 4.0 * sd, f64::min);
+        let hi = points.iter().map(|p| p.1).fold(mean + 4.0 * sd, f64::max);
+        Some(LeveyJennings {
+            title: title.to_string(),
+            mean,
+            sd,
+            points,
+            runs: values.len().max(1),
+            y_min: lo,
+            y_max: hi,
+        })
+    }
+
+    /// The horizontal lines: (multiple of SD, value) for −3 … +3.
+    pub fn sd_lines(&self) -> Vec<(i32, f64)> {
+        (-3..=3)
+            .map(|k| (k, self.mean + k as f64 * self.sd))
+            .collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn lines_and_range() {
+        let lj =
+            LeveyJennings::new("GLU N", 100.0, 2.0, &[Some(101.0), None, Some(111.0)]).unwrap();
+        assert_eq!(lj.points, vec![(1.0, 101.0), (3.0, 111.0)]);
+        assert_eq!(lj.sd_lines()[0], (-3, 94.0));
+        assert_eq!(lj.y_min, 92.0);
+        assert_eq!(lj.y_max, 111.0);
+        assert!(LeveyJennings::new("x", 1.0, 0.0, &[]).is_none());
+    }
+}

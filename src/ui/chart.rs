@@ -1,0 +1,75 @@
+//! Drawing: plotters on an HTML canvas. Draws series the engine computed; no arithmetic
+//! beyond placing them.
+
+use leptos::html::Canvas;
+use leptos::prelude::*;
+use plotters::prelude::*;
+use plotters_canvas::CanvasBackend;
+
+use crate::engine::charts::LeveyJennings;
+
+/// A Levey–Jennings chart of one control level.
+#[component]
+pub fn LeveyJenningsChart(
+    /// The series to draw.
+    series: LeveyJennings,
+) -> impl IntoView {
+    let canvas = NodeRef::<Canvas>::new();
+    let title = series.title.clone();
+    Effect::new(move |_| {
+        if let Some(el) = canvas.get() {
+            if let Err(e) = draw(el, &series) {
+                leptos::logging::warn!("chart not drawn: {e}");
+            }
+        }
+    });
+    view! {
+        <figure class="chart">
+            <figcaption>{title}</figcaption>
+            <canvas node_ref=canvas width="720" height="240" data-testid="lj-chart"></canvas>
+        </figure>
+    }
+}
+
+fn draw(el: web_sys::HtmlCanvasElement, s: &LeveyJennings) -> Result<(), String> {
+    let backend = CanvasBackend::with_canvas_object(el).ok_or("no canvas context")?;
+    let root = backend.into_drawing_area();
+    root.fill(&WHITE).map_err(|e| e.to_string())?;
+    let mut chart = ChartBuilder::on(&root)
+        .margin(8)
+        .x_label_area_size(24)
+        .y_label_area_size(56)
+        .build_cartesian_2d(0.0..(s.runs as f64 + 1.0), s.y_min..s.y_max)
+        .map_err(|e| e.to_string())?;
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .x_labels(10)
+        .y_labels(7)
+        .draw()
+        .map_err(|e| e.to_string())?;
+    let x_end = s.runs as f64 + 1.0;
+    for (k, y) in s.sd_lines() {
+        let style = match k.abs() {
+            0 => RGBColor(30, 30, 30).stroke_width(2),
+            1 => RGBColor(170, 170, 170).stroke_width(1),
+            2 => RGBColor(200, 140, 0).stroke_width(1),
+            _ => RGBColor(190, 30, 30).stroke_width(1),
+        };
+        chart
+            .draw_series(LineSeries::new(vec![(0.0, y), (x_end, y)], style))
+            .map_err(|e| e.to_string())?;
+    }
+    let ink = RGBColor(20, 70, 140);
+    chart
+        .draw_series(LineSeries::new(
+            s.points.iter().copied(),
+            ink.stroke_width(1),
+        ))
+        .map_err(|e| e.to_string())?;
+    chart
+        .draw_series(s.points.iter().map(|&p| Circle::new(p, 3, ink.filled())))
+        .map_err(|e| e.to_string())?;
+    root.present().map_err(|e| e.to_string())?;
+    Ok(())
+}

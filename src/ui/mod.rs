@@ -1,0 +1,462 @@
+//! The browser shell: leptos components for the bench's views.
+//!
+//! Components hold engine values in signals and call the engine for every number they
+//! show; they do no arithmetic of their own. Storage goes through [`crate::store`],
+//! drawing through [`chart`].
+
+mod chart;
+
+use chrono::{Local, Utc};
+use leptos::prelude::*;
+
+use crate::engine::charts::LeveyJennings;
+use crate::engine::stability::{self, StabilityState, WarningWindow};
+use crate::lab::Lab;
+use crate::store;
+
+/// The demo lab, embedded at build time from `demo-data/`.
+pub const DEMO_LAB: &str = include_str!("../../demo-data/demo-lab.json");
+
+/// The bench's views, in the order of the navigation.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum View {
+    Today,
+    Calibration,
+    Runs,
+    Charts,
+    Materials,
+    Records,
+    Setup,
+}
+
+impl View {
+    pub const ALL: [View; 7] = [
+        View::Today,
+        View::Calibration,
+        View::Runs,
+        View::Charts,
+        View::Materials,
+        View::Records,
+        View::Setup,
+    ];
+
+    /// Label in the navigation.
+    pub fn label(self) -> &'static str {
+        match self {
+            View::Today => "Today",
+            View::Calibration => "Calibration",
+            View::Runs => "QC runs",
+            View::Charts => "Control charts",
+            View::Materials => "Materials",
+            View::Records => "Records",
+            View::Setup => "Set-up",
+        }
+    }
+
+    /// Stable name for storage and test selectors.
+    pub fn slug(self) -> &'static str {
+        match self {
+            View::Today => "today",
+            View::Calibration => "calibration",
+            View::Runs => "runs",
+            View::Charts => "charts",
+            View::Materials => "materials",
+            View::Records => "records",
+            View::Setup => "setup",
+        }
+    }
+
+    fn from_slug(s: &str) -> Option<View> {
+        View::ALL.into_iter().find(|v| v.slug() == s)
+    }
+}
+
+/// The whole app.
+#[component]
+pub fn App() -> impl IntoView {
+    let (lab, set_lab) = signal::<Option<Lab>>(None);
+    let (problem, set_problem) = signal::<Option<String>>(None);
+    match store::load_lab() {
+        Ok(saved) => set_lab.set(saved),
+        Err(e) => set_problem.set(Some(e.0)),
+    }
+    let start = store::view()
+        .and_then(|s| View::from_slug(&s))
+        .unwrap_or(View::Today);
+    let (active, set_active) = signal(start);
+    let (technician, set_technician) = signal(store::technician());
+
+    let choose = move |v: View| {
+        set_active.set(v);
+        if let Err(e) = store::set_view(v.slug()) {
+            set_problem.set(Some(e.0));
+        }
+    };
+    let load_demo = move |_| match Lab::from_json(DEMO_LAB) {
+        Ok(demo) => {
+            if let Err(e) = store::save_lab(&demo) {
+                set_problem.set(Some(e.0));
+            }
+            set_lab.set(Some(demo));
+            set_problem.set(None);
+        }
+        Err(e) => set_problem.set(Some(format!("the demo lab is damaged: {e}"))),
+    };
+    let on_initials = move |ev: leptos::ev::Event| {
+        let v = event_target_value(&ev).trim().to_uppercase();
+        match store::set_technician(&v) {
+            Ok(()) => set_technician.set(v),
+            Err(e) => set_problem.set(Some(e.0)),
+        }
+    };
+    let is_demo = move || lab.with(|l| l.as_ref().is_some_and(|l| l.demo));
+    let lab_name = move || {
+        lab.with(|l| {
+            l.as_ref()
+                .map_or("No lab set up yet".to_string(), |l| l.lab_name.clone())
+        })
+    };
+
+    view! {
+        <header class="top">
+            <div class="brand">
+                <span class="mark" aria-hidden="true"></span>
+                <span class="name">"Cuvette"</span>
+                <span class="lab" data-testid="lab-name">{lab_name}</span>
+            </div>
+            <label class="initials">
+                "Technician "
+                <input
+                    data-testid="initials"
+                    maxlength="5"
+                    size="5"
+                    placeholder="initials"
+                    prop:value=move || technician.get()
+                    on:change=on_initials
+                />
+            </label>
+        </header>
+        <Show when=is_demo>
+            <p class="demo-banner" data-testid="demo-banner">
+                "DEMO LAB: invented data for practice. Nothing here is a patient result."
+            </p>
+        </Show>
+        <p class="caution">
+            "Cuvette supports your lab's own QC policy, the maker's instructions for use and \
+             local regulations; it does not replace them or the judgement of qualified staff. \
+             Never release results of a rejected run."
+        </p>
+        {move || problem.get().map(|p| view! { <p class="problem" role="alert">{p}</p> })}
+        <nav class="views" aria-label="Views">
+            {View::ALL
+                .into_iter()
+                .map(|v| {
+                    view! {
+                        <button
+                            data-testid=format!("nav-{}", v.slug())
+                            class:current=move || active.get() == v
+                            on:click=move |_| choose(v)
+                        >
+                            {v.label()}
+                        </button>
+                    }
+                })
+                .collect_view()}
+        </nav>
+        <main>
+            <ViewPanel view=View::Today active=active>
+                <TodayBoard lab=lab />
+            </ViewPanel>
+            <ViewPanel view=View::Calibration active=active>
+                <CalibrationList lab=lab />
+            </ViewPanel>
+            <ViewPanel view=View::Runs active=active>
+                <RunList lab=lab />
+            </ViewPanel>
+            <ViewPanel view=View::Charts active=active>
+                <ControlCharts lab=lab />
+            </ViewPanel>
+            <ViewPanel view=View::Materials active=active>
+                <MaterialList lab=lab />
+            </ViewPanel>
+            <ViewPanel view=View::Records active=active>
+                <EmptyState text="Records of calibrations, runs and corrections will be listed here. \
+                                  Export and import for the USB stick come with the records work." />
+            </ViewPanel>
+            <ViewPanel view=View::Setup active=active>
+                <section class="card">
+                    <h3>"Demo lab"</h3>
+                    <p>
+                        "Load an invented district-hospital lab with three tests, QC history and \
+                         materials, to try every view. It replaces the lab saved in this browser."
+                    </p>
+                    <button data-testid="load-demo" on:click=load_demo>
+                        "Load demo lab"
+                    </button>
+                </section>
+            </ViewPanel>
+        </main>
+    }
+}
+
+/// One view: always in the page (so tests and screen readers find it), shown when active.
+#[component]
+fn ViewPanel(
+    /// Which view this panel is.
+    view: View,
+    /// The view currently shown.
+    active: ReadSignal<View>,
+    children: Children,
+) -> impl IntoView {
+    view! {
+        <section
+            class="view"
+            data-testid=format!("view-{}", view.slug())
+            hidden=move || active.get() != view
+        >
+            <h2>{view.label()}</h2>
+            {children()}
+        </section>
+    }
+}
+
+/// What a view says when it has nothing to show yet.
+#[component]
+fn EmptyState(
+    /// The sentence shown.
+    text: &'static str,
+) -> impl IntoView {
+    view! { <p class="empty">{text}</p> }
+}
+
+const NO_LAB: &str = "No lab yet. Set up your tests, or load the demo lab from Set-up.";
+
+#[component]
+fn TodayBoard(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+) -> impl IntoView {
+    move || {
+        lab.with(|l| match l {
+            None => view! { <EmptyState text=NO_LAB /> }.into_any(),
+            Some(l) => {
+                let now = Utc::now();
+                let attention = l
+                    .materials
+                    .iter()
+                    .filter_map(|m| {
+                        stability::evaluate(&m.stability, now, &Local, WarningWindow::default())
+                            .ok()
+                            .filter(|r| r.material.state != StabilityState::Ok)
+                            .map(|r| format!("{}: {}", m.name, state_word(r.material.state)))
+                    })
+                    .collect::<Vec<_>>();
+                view! {
+                    <ul class="board">
+                        <li>{format!("{} tests set up", l.tests.len())}</li>
+                        <li>{format!("{} QC runs recorded", l.control_runs.len())}</li>
+                        <li>{format!("{} materials need attention", attention.len())}</li>
+                    </ul>
+                    <ul>{attention.into_iter().map(|a| view! { <li>{a}</li> }).collect_view()}</ul>
+                }
+                .into_any()
+            }
+        })
+    }
+}
+
+fn state_word(s: StabilityState) -> &'static str {
+    match s {
+        StabilityState::Ok => "usable",
+        StabilityState::Expiring => "expiring soon",
+        StabilityState::Expired => "expired: do not use",
+    }
+}
+
+#[component]
+fn CalibrationList(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+) -> impl IntoView {
+    move || {
+        lab.with(|l| match l {
+            None => view! { <EmptyState text=NO_LAB /> }.into_any(),
+            Some(l) if l.tests.is_empty() => {
+                view! { <EmptyState text="No tests set up yet." /> }.into_any()
+            }
+            Some(l) => view! {
+                <table>
+                    <thead><tr><th>"Test"</th><th>"Unit"</th><th>"Calibration"</th><th>"nm"</th></tr></thead>
+                    <tbody>
+                        {l.tests.iter().map(|t| view! {
+                            <tr>
+                                <td>{format!("{} {}", t.code, t.name)}</td>
+                                <td>{t.unit.clone()}</td>
+                                <td>{t.model.code()}</td>
+                                <td>{t.wavelength_nm}</td>
+                            </tr>
+                        }).collect_view()}
+                    </tbody>
+                </table>
+                <p class="empty">"No calibrations recorded yet."</p>
+            }
+            .into_any(),
+        })
+    }
+}
+
+#[component]
+fn RunList(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+) -> impl IntoView {
+    move || {
+        lab.with(|l| match l {
+            None => view! { <EmptyState text=NO_LAB /> }.into_any(),
+            Some(l) if l.control_runs.is_empty() => {
+                view! { <EmptyState text="No QC runs recorded yet." /> }.into_any()
+            }
+            Some(l) => {
+                let rows = l
+                    .tests
+                    .iter()
+                    .map(|t| {
+                        let runs = l.runs_of(&t.meta.id);
+                        let last = runs.last().map(|r| {
+                            r.run_at
+                                .with_timezone(&Local)
+                                .format("%Y-%m-%d %H:%M")
+                                .to_string()
+                        });
+                        view! {
+                            <tr>
+                                <td>{t.code.clone()}</td>
+                                <td>{runs.len()}</td>
+                                <td>{last.unwrap_or_else(|| "none".into())}</td>
+                            </tr>
+                        }
+                    })
+                    .collect_view();
+                view! {
+                    <table>
+                        <thead><tr><th>"Test"</th><th>"Runs"</th><th>"Last run"</th></tr></thead>
+                        <tbody>{rows}</tbody>
+                    </table>
+                }
+                .into_any()
+            }
+        })
+    }
+}
+
+#[component]
+fn ControlCharts(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+) -> impl IntoView {
+    move || {
+        lab.with(|l| {
+            let Some(l) = l else {
+                return view! { <EmptyState text=NO_LAB /> }.into_any();
+            };
+            let charts: Vec<LeveyJennings> = l
+                .tests
+                .iter()
+                .flat_map(|t| {
+                    let runs = l.runs_of(&t.meta.id);
+                    l.levels_of(&t.meta.id)
+                        .into_iter()
+                        .filter_map(|level| {
+                            let values: Vec<Option<f64>> = runs
+                                .iter()
+                                .map(|r| {
+                                    r.level_ids
+                                        .iter()
+                                        .position(|id| *id == level.meta.id)
+                                        .and_then(|k| r.values.get(k).copied().flatten())
+                                })
+                                .collect();
+                            LeveyJennings::new(
+                                &format!("{} {} ({})", t.code, level.name, t.unit),
+                                level.mean,
+                                level.sd,
+                                &values,
+                            )
+                        })
+                        .collect::<Vec<_>>()
+                })
+                .collect();
+            if charts.is_empty() {
+                return view! { <EmptyState text="No control results to chart yet." /> }.into_any();
+            }
+            charts
+                .into_iter()
+                .map(|series| view! { <chart::LeveyJenningsChart series=series /> })
+                .collect_view()
+                .into_any()
+        })
+    }
+}
+
+#[component]
+fn MaterialList(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+) -> impl IntoView {
+    move || {
+        lab.with(|l| match l {
+            None => view! { <EmptyState text=NO_LAB /> }.into_any(),
+            Some(l) if l.materials.is_empty() => {
+                view! { <EmptyState text="No reagents, calibrators or controls in use." /> }
+                    .into_any()
+            }
+            Some(l) => {
+                let now = Utc::now();
+                let rows = l
+                    .materials
+                    .iter()
+                    .map(|m| {
+                        let (until, why, state) = match stability::evaluate(
+                            &m.stability,
+                            now,
+                            &Local,
+                            WarningWindow::default(),
+                        ) {
+                            Ok(r) => (
+                                r.material
+                                    .until
+                                    .with_timezone(&Local)
+                                    .format("%Y-%m-%d %H:%M")
+                                    .to_string(),
+                                r.material.governed_by.describe().to_string(),
+                                state_word(r.material.state).to_string(),
+                            ),
+                            Err(e) => ("?".into(), e.0, "check the record".into()),
+                        };
+                        view! {
+                            <tr>
+                                <td>{m.name.clone()}</td>
+                                <td>{m.lot.clone()}</td>
+                                <td>{until}</td>
+                                <td>{why}</td>
+                                <td>{state}</td>
+                            </tr>
+                        }
+                    })
+                    .collect_view();
+                view! {
+                    <table>
+                        <thead>
+                            <tr>
+                                <th>"Material"</th><th>"Lot"</th><th>"Usable until"</th>
+                                <th>"Set by"</th><th>"State"</th>
+                            </tr>
+                        </thead>
+                        <tbody>{rows}</tbody>
+                    </table>
+                }
+                .into_any()
+            }
+        })
+    }
+}

@@ -1,0 +1,80 @@
+// The delivery chain: the single file opens from file://, renders the app, keeps what
+// it saves across a reload and a browser restart, and logs no errors.
+import { test } from "node:test";
+import assert from "node:assert/strict";
+import { openApp, newProfile, byTestId } from "./helpers.mjs";
+
+test("the single file renders the app shell from file://", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    assert.ok(page.url().startsWith("file://"), page.url());
+    const views = await page.locator("main > section.view").evaluateAll((els) =>
+      els.map((e) => e.dataset.testid));
+    for (const v of ["today", "calibration", "runs", "charts", "materials", "records", "setup"]) {
+      assert.ok(views.includes(`view-${v}`), `view ${v} missing from <main>: ${views}`);
+    }
+    // Navigation shows one view at a time.
+    await byTestId(page, "nav-calibration").click();
+    assert.equal(await byTestId(page, "view-calibration").isVisible(), true);
+    assert.equal(await byTestId(page, "view-today").isVisible(), false);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("saved values survive a reload and a browser restart", async () => {
+  const profile = newProfile();
+  let { context, page, problems } = await openApp(profile);
+  await byTestId(page, "initials").fill("ab");
+  await byTestId(page, "initials").press("Enter");
+  await byTestId(page, "nav-materials").click();
+  const keys = await page.evaluate(() => Object.keys(localStorage));
+  assert.ok(keys.length > 0 && keys.every((k) => k.startsWith("cuvette.")), `keys: ${keys}`);
+  await page.reload();
+  await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached" });
+  assert.equal(await byTestId(page, "initials").inputValue(), "AB");
+  assert.equal(await byTestId(page, "view-materials").isVisible(), true);
+  assert.deepEqual(problems, []);
+  await context.close();
+
+  ({ context, page, problems } = await openApp(profile));
+  try {
+    assert.equal(await byTestId(page, "initials").inputValue(), "AB", "initials lost on restart");
+    assert.equal(await byTestId(page, "view-materials").isVisible(), true);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("the demo lab loads from the embedded file and draws control charts", async () => {
+  const profile = newProfile();
+  let { context, page, problems } = await openApp(profile);
+  await byTestId(page, "nav-setup").click();
+  await byTestId(page, "load-demo").click();
+  await byTestId(page, "demo-banner").waitFor();
+  assert.match(await byTestId(page, "lab-name").innerText(), /demo/i);
+  await byTestId(page, "nav-charts").click();
+  const charts = byTestId(page, "lj-chart");
+  await charts.first().waitFor();
+  assert.ok((await charts.count()) >= 2, "one chart per control level");
+  // The canvas really has ink on it: count non-white pixels.
+  const inked = await charts.first().evaluate((c) => {
+    const d = c.getContext("2d").getImageData(0, 0, c.width, c.height).data;
+    let n = 0;
+    for (let i = 0; i < d.length; i += 4) if (d[i] < 200 || d[i + 1] < 200 || d[i + 2] < 200) n++;
+    return n;
+  });
+  assert.ok(inked > 500, `only ${inked} inked pixels`);
+  assert.deepEqual(problems, []);
+  await context.close();
+  // The demo lab is still there after a restart.
+  ({ context, page, problems } = await openApp(profile));
+  try {
+    await byTestId(page, "demo-banner").waitFor();
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
