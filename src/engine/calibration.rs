@@ -319,7 +319,7 @@ impl Curve {
             }
             Curve::FivePl { a, b, c, d, g } => {
                 let ratio = (a - d) / (signal - d);
-                if !(ratio > 0.0) {
+                if ratio.is_nan() || ratio <= 0.0 {
                     return None;
                 }
                 let q = ratio.powf(1.0 / g) - 1.0;
@@ -371,7 +371,7 @@ fn logistic_x(q: f64, b: f64, c: f64, signal: f64, a: f64) -> Option<f64> {
     if signal == a && b > 0.0 {
         return Some(0.0);
     }
-    if !(q > 0.0) || !q.is_finite() || b == 0.0 {
+    if q.is_nan() || q <= 0.0 || !q.is_finite() || b == 0.0 {
         return None;
     }
     let x = c * q.powf(1.0 / b);

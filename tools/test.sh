@@ -1,0 +1,20 @@
+#!/usr/bin/env bash
+# Command 2: install what the tests need, then run every test: formatting and lints,
+# native unit tests, reference checks (NIST StRD, numpy, scipy), and the end-to-end
+# tests of dist/cuvette.html in headless Chromium.
+source "$(dirname "$0")/setup.sh"
+started=$(date +%s)
+need_build_tools
+need_test_tools
+
+say "cargo fmt --check"
+cargo fmt --all -- --check
+say "cargo clippy"
+cargo clippy --locked --all-targets -q -- -D warnings
+say "native unit tests and reference checks"
+cargo test --locked -q
+build_bundle
+say "browser tests (headless Chromium, file://)"
+(cd tests/e2e && npm test --silent)
+echo
+echo "All tests passed in $(( $(date +%s) - started )) s."
