@@ -15,7 +15,9 @@ fn rust_files(dir: &Path, out: &mut Vec<std::path::PathBuf>) {
 }
 
 fn code_lines(text: &str) -> impl Iterator<Item = &str> {
-    text.lines().map(str::trim_start).filter(|l| !l.starts_with("//"))
+    text.lines()
+        .map(str::trim_start)
+        .filter(|l| !l.starts_with("//"))
 }
 
 #[test]
@@ -24,8 +26,16 @@ fn engine_imports_no_browser_crate_and_no_storage() {
     let mut files = Vec::new();
     rust_files(&root, &mut files);
     assert!(files.len() >= 5, "engine files not found");
-    let forbidden =
-        ["leptos", "web_sys", "wasm_bindgen", "js_sys", "gloo", "plotters", "crate::store", "crate::ui"];
+    let forbidden = [
+        "leptos",
+        "web_sys",
+        "wasm_bindgen",
+        "js_sys",
+        "gloo",
+        "plotters",
+        "crate::store",
+        "crate::ui",
+    ];
     for f in files {
         let text = std::fs::read_to_string(&f).expect("read");
         for line in code_lines(&text) {
@@ -36,7 +46,11 @@ fn engine_imports_no_browser_crate_and_no_storage() {
                     f.display()
                 );
             }
-            assert!(!line.contains("Utc::now") && !line.contains("Local::now"), "{}: the engine reads no clock", f.display());
+            assert!(
+                !line.contains("Utc::now") && !line.contains("Local::now"),
+                "{}: the engine reads no clock",
+                f.display()
+            );
         }
     }
 }

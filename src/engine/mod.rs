@@ -11,4 +11,5 @@
 pub mod calibration;
 pub mod charts;
 pub mod lm;
+pub mod qc;
 pub mod stability;

@@ -554,7 +554,13 @@ mod tests {
             frozen: None,
             analytes: vec![],
         };
-        let e = evaluate(&m, utc("2026-12-01T00:00:00Z"), &Utc, WarningWindow::default()).unwrap_err();
+        let e = evaluate(
+            &m,
+            utc("2026-12-01T00:00:00Z"),
+            &Utc,
+            WarningWindow::default(),
+        )
+        .unwrap_err();
         assert!(e.0.contains("in_use_hours"), "{}", e.0);
     }
 }
