@@ -364,7 +364,7 @@ pub fn evaluate(
         ));
     }
     for (l, t) in targets.iter().enumerate() {
-        if !t.mean.is_finite() || !(t.sd.is_finite() && t.sd > 0.0) {
+        if !(t.mean.is_finite() && t.sd.is_finite() && t.sd > 0.0) {
             return Err(QcError(format!(
                 "levels[{l}]: the mean must be a number and the SD a number above 0 (SD is {})",
                 t.sd
