@@ -39,7 +39,7 @@ fn runs(z: &[&[f64]]) -> (Vec<LevelTarget>, Vec<Vec<Option<f64>>>) {
         .map(|run| {
             run.iter()
                 .zip(&targets)
-                .map(|(&z, t)| (!z.is_nan()).then(|| t.mean + z * t.sd))
+                .map(|(&z, t)| (!z.is_nan()).then_some(t.mean + z * t.sd))
                 .collect()
         })
         .collect();
@@ -198,9 +198,7 @@ fn ten_x_within_level_and_across_levels() {
     );
     check(&["10-x"], &refs[..9], Decision::Accept, &[]);
     // Five runs of both levels above the mean: ten results across runs and levels.
-    z = (0..5).map(|_| vec![0.4, 0.7]).collect();
-    let zz = as_slices(&z);
-    let refs: Vec<&[f64]> = zz.iter().map(|r| r.as_slice()).collect();
+    let refs: Vec<&[f64]> = (0..5).map(|_| &[0.4, 0.7][..]).collect();
     check(
         &["10-x"],
         &refs,
