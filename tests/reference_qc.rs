@@ -184,12 +184,10 @@ fn four_one_s_within_level_and_across_levels() {
 
 #[test]
 fn ten_x_within_level_and_across_levels() {
-    let mut z: Vec<Vec<f64>> = (0..10)
+    let z: Vec<Vec<f64>> = (0..10)
         .map(|i| vec![0.4, if i % 2 == 0 { 0.5 } else { -0.5 }])
         .collect();
-    let as_slices = |z: &Vec<Vec<f64>>| z.iter().map(|r| r.clone()).collect::<Vec<_>>();
-    let zz = as_slices(&z);
-    let refs: Vec<&[f64]> = zz.iter().map(|r| r.as_slice()).collect();
+    let refs: Vec<&[f64]> = z.iter().map(|r| r.as_slice()).collect();
     check(
         &["10-x"],
         &refs,
