@@ -4,6 +4,8 @@
 //! values around an arbitrary target so the z computation is exercised too.
 //! "Exceeds 2 SD" is read strictly: a result at exactly +2 SD does not exceed it.
 
+mod common;
+
 use cuvette::engine::qc::{
     evaluate, Action, Decision, LevelTarget, Rule, RuleSetting, Scope, Violation,
 };
@@ -311,4 +313,32 @@ fn each_run_is_judged_on_its_history() {
         decisions,
         vec![Decision::Warning, Decision::Reject, Decision::Accept]
     );
+}
+
+/// QC statistics against numpy (mean, std with ddof=1) on seeded random results.
+#[test]
+fn statistics_agree_with_numpy() {
+    use cuvette::engine::qcstats::summarize;
+    use rand::{rngs::StdRng, Rng, SeedableRng};
+    let mut rng = StdRng::seed_from_u64(7);
+    let sets: Vec<Vec<f64>> = (0..20)
+        .map(|_| {
+            let n = rng.gen_range(2..60);
+            let mean = rng.gen_range(1.0..500.0);
+            (0..n)
+                .map(|_| mean * (1.0 + rng.gen_range(-0.05..0.05)))
+                .collect()
+        })
+        .collect();
+    let numpy = common::python_json(
+        "import json,sys,numpy as np\nd=json.load(sys.stdin)\n\
+         print(json.dumps([[float(np.mean(v)), float(np.std(v, ddof=1))] for v in d]))",
+        &serde_json::json!(sets),
+    );
+    for (v, r) in sets.iter().zip(numpy.as_array().unwrap()) {
+        let s = summarize(v).unwrap();
+        let (m, sd) = (r[0].as_f64().unwrap(), r[1].as_f64().unwrap());
+        assert!((s.mean - m).abs() <= 1e-12 * m.abs());
+        assert!((s.sd.unwrap() - sd).abs() <= 1e-9 * sd);
+    }
 }

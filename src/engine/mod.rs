@@ -12,4 +12,5 @@ pub mod calibration;
 pub mod charts;
 pub mod lm;
 pub mod qc;
+pub mod qcstats;
 pub mod stability;
