@@ -13,4 +13,6 @@ pub mod charts;
 pub mod lm;
 pub mod qc;
 pub mod qcstats;
+pub mod readings;
 pub mod stability;
+pub mod units;
