@@ -8,6 +8,7 @@
 // Numeric code indexes several arrays in step; index loops read clearer there.
 #![allow(clippy::needless_range_loop)]
 
+pub mod acceptance;
 pub mod calibration;
 pub mod charts;
 pub mod lm;
