@@ -4,6 +4,8 @@
 //! command-line calculator); `lab` is the record data; `store` and `ui` are the thin
 //! browser shell.
 
+#[cfg(not(target_arch = "wasm32"))]
+pub mod calc;
 pub mod engine;
 pub mod lab;
 pub mod store;
