@@ -23,7 +23,7 @@ use nalgebra::{DMatrix, DVector};
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
-use super::lm::{self, CurveModel, CurveProblem, Settings};
+use super::lm::{self, LeastSquaresProblem, Settings};
 
 /// Which calibration function.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -790,12 +790,51 @@ fn polynomial(
     Ok(Polynomial { coef, se })
 }
 
-/// The 4PL / 5PL model for the LM core: p = [a, b, c, d] or [a, b, c, d, g].
-struct Logistic {
+/// The 4PL / 5PL least-squares problem for the LM core: p = [a, b, c, d] or
+/// [a, b, c, d, g]. ln(conc) is computed once per point, so an evaluation costs one
+/// `exp` per point (4PL) and the gradient reuses it.
+struct LogisticProblem<'a> {
     five: bool,
+    /// ln(conc), `None` at conc 0.
+    ln_x: Vec<Option<f64>>,
+    y: &'a [f64],
+    /// √weight per point.
+    root_w: Vec<f64>,
 }
 
-impl CurveModel for Logistic {
+impl<'a> LogisticProblem<'a> {
+    fn new(five: bool, x: &[f64], y: &'a [f64], w: Option<&[f64]>) -> Self {
+        LogisticProblem {
+            five,
+            ln_x: x.iter().map(|&v| (v > 0.0).then(|| v.ln())).collect(),
+            y,
+            root_w: (0..x.len())
+                .map(|i| w.map_or(1.0, |w| w[i].sqrt()))
+                .collect(),
+        }
+    }
+
+    /// u = (x/c)^b and ln(x/c) for point i; u = 0 at conc 0 (only for b > 0).
+    fn u(&self, i: usize, b: f64, ln_c: f64) -> Option<(f64, f64)> {
+        match self.ln_x[i] {
+            None => (b > 0.0).then_some((0.0, 0.0)),
+            Some(lx) => {
+                let l = lx - ln_c;
+                Some(((b * l).exp(), l))
+            }
+        }
+    }
+
+    fn g(&self, p: &[f64]) -> Option<f64> {
+        let g = if self.five { p[4] } else { 1.0 };
+        (g > 0.0 && p[2] > 0.0).then_some(g)
+    }
+}
+
+impl LeastSquaresProblem for LogisticProblem<'_> {
+    fn n_residuals(&self) -> usize {
+        self.y.len()
+    }
     fn n_params(&self) -> usize {
         if self.five {
             5
@@ -803,39 +842,38 @@ impl CurveModel for Logistic {
             4
         }
     }
-    fn value(&self, x: f64, p: &[f64]) -> Option<f64> {
+    fn residuals(&self, p: &[f64], out: &mut [f64]) -> Option<()> {
         let (a, b, c, d) = (p[0], p[1], p[2], p[3]);
-        let g = if self.five { p[4] } else { 1.0 };
-        if g <= 0.0 {
-            return None;
+        let g = self.g(p)?;
+        let ln_c = c.ln();
+        for i in 0..self.y.len() {
+            let (u, _) = self.u(i, b, ln_c)?;
+            let den = 1.0 + u;
+            let shape = if self.five { den.powf(-g) } else { 1.0 / den };
+            out[i] = self.root_w[i] * (self.y[i] - (d + (a - d) * shape));
         }
-        let u = logistic_u(x, b, c)?;
-        let v = d + (a - d) / (1.0 + u).powf(g);
-        v.is_finite().then_some(v)
+        Some(())
     }
-    fn gradient(&self, x: f64, p: &[f64], grad: &mut [f64]) -> Option<()> {
+    fn jacobian(&self, p: &[f64], out: &mut DMatrix<f64>) -> Option<()> {
         let (a, b, c, d) = (p[0], p[1], p[2], p[3]);
-        let g = if self.five { p[4] } else { 1.0 };
-        if g <= 0.0 {
-            return None;
+        let g = self.g(p)?;
+        let ln_c = c.ln();
+        for i in 0..self.y.len() {
+            let (u, l) = self.u(i, b, ln_c)?;
+            let den = 1.0 + u;
+            let shape = if self.five { den.powf(-g) } else { 1.0 / den };
+            let w = -self.root_w[i];
+            out[(i, 0)] = w * shape;
+            out[(i, 3)] = w * (1.0 - shape);
+            // d shape / d u = −g · shape / den
+            let common = (a - d) * g * shape / den * u;
+            out[(i, 1)] = w * (-common * l);
+            out[(i, 2)] = w * (common * b / c);
+            if self.five {
+                out[(i, 4)] = w * (-(a - d) * shape * den.ln());
+            }
         }
-        let u = logistic_u(x, b, c)?;
-        let den = 1.0 + u;
-        let dg = den.powf(-g);
-        grad[0] = dg;
-        grad[3] = 1.0 - dg;
-        if u == 0.0 {
-            grad[1] = 0.0;
-            grad[2] = 0.0;
-        } else {
-            let common = (a - d) * g * den.powf(-g - 1.0) * u;
-            grad[1] = -common * (x / c).ln();
-            grad[2] = common * b / c;
-        }
-        if self.five {
-            grad[4] = -(a - d) * dg * den.ln();
-        }
-        grad.iter().all(|v| v.is_finite()).then_some(())
+        Some(())
     }
 }
 
@@ -907,13 +945,7 @@ fn logistic_fit(
         gtol: 1e-14,
         max_evaluations: 5_000,
     };
-    let four = Logistic { five: false };
-    let problem4 = CurveProblem {
-        model: &four,
-        x,
-        y,
-        weights: w,
-    };
+    let problem4 = LogisticProblem::new(false, x, y, w);
     let base = logistic_start(x, y);
     let mut evaluations = 0;
     let mut best: Option<lm::Report> = None;
@@ -937,13 +969,7 @@ fn logistic_fit(
         consider(lm::solve(&problem4, s, &settings), &mut best);
     }
     if model == ModelKind::FivePl {
-        let five = Logistic { five: true };
-        let problem5 = CurveProblem {
-            model: &five,
-            x,
-            y,
-            weights: w,
-        };
+        let problem5 = LogisticProblem::new(true, x, y, w);
         let from = best.as_ref().map_or(base, |b| {
             [b.params[0], b.params[1], b.params[2], b.params[3]]
         });
@@ -1077,6 +1103,43 @@ mod tests {
         };
         let s = five.signal_at(7.0);
         assert!((five.conc_at(s, 10.0).unwrap() - 7.0).abs() < 1e-9);
+    }
+
+    /// The analytic 4PL/5PL Jacobian agrees with central finite differences, also with
+    /// weights and a zero-concentration point.
+    #[test]
+    fn logistic_jacobian_matches_finite_differences() {
+        let x = [0.0, 0.5, 2.0, 8.0, 30.0];
+        let y = [0.1, 0.3, 0.9, 1.6, 1.9];
+        let w = [1.0, 2.0, 0.5, 1.5, 1.0];
+        for five in [false, true] {
+            let prob = LogisticProblem::new(five, &x, &y, Some(&w));
+            let p: Vec<f64> = if five {
+                vec![0.05, 1.3, 4.0, 2.1, 0.7]
+            } else {
+                vec![0.05, 1.3, 4.0, 2.1]
+            };
+            let n = p.len();
+            let mut jac = DMatrix::zeros(x.len(), n);
+            prob.jacobian(&p, &mut jac).unwrap();
+            for j in 0..n {
+                let h = 1e-6 * p[j].abs().max(1e-3);
+                let (mut p1, mut p2) = (p.clone(), p.clone());
+                p1[j] += h;
+                p2[j] -= h;
+                let (mut r1, mut r2) = (vec![0.0; x.len()], vec![0.0; x.len()]);
+                prob.residuals(&p1, &mut r1).unwrap();
+                prob.residuals(&p2, &mut r2).unwrap();
+                for i in 0..x.len() {
+                    let fd = (r1[i] - r2[i]) / (2.0 * h);
+                    assert!(
+                        (fd - jac[(i, j)]).abs() <= 1e-6 * fd.abs().max(1e-6),
+                        "five={five} i={i} j={j}: {} vs {fd}",
+                        jac[(i, j)]
+                    );
+                }
+            }
+        }
     }
 
     #[test]

@@ -144,6 +144,8 @@ pub fn solve<P: LeastSquaresProblem + ?Sized>(
     let mut need_svd = true;
     let mut svd_parts: Option<(DMatrix<f64>, DVector<f64>, DMatrix<f64>)> = None;
     let mut ut_r = DVector::zeros(n);
+    let mut step_scaled = DVector::zeros(n);
+    let mut jac_trial = DMatrix::zeros(m, n);
 
     let termination = loop {
         if need_svd {
@@ -182,8 +184,7 @@ pub fn solve<P: LeastSquaresProblem + ?Sized>(
                 break Termination::Stuck;
             };
             let sigma = svd.singular_values;
-            let rv = DVector::from_column_slice(&r);
-            ut_r = u.transpose() * &rv;
+            ut_r = u.tr_mul(&DVector::from_column_slice(&r));
             if mu < 0.0 {
                 let smax = sigma.iter().cloned().fold(0.0, f64::max);
                 mu = 1e-3 * smax * smax;
@@ -200,13 +201,14 @@ pub fn solve<P: LeastSquaresProblem + ?Sized>(
         iterations += 1;
         // Scaled step: delta~ = -sum_i sigma_i/(sigma_i^2 + mu) (u_i . r) v_i.
         let k = sigma.len();
-        let mut step_scaled = DVector::zeros(n);
+        step_scaled.fill(0.0);
         for i in 0..k {
             let s = sigma[i];
             let coef = -s / (s * s + mu) * ut_r[i];
-            step_scaled += v_t.row(i).transpose() * coef;
+            for j in 0..n {
+                step_scaled[j] += v_t[(i, j)] * coef;
+            }
         }
-        let step: Vec<f64> = (0..n).map(|j| step_scaled[j] / scale[j]).collect();
         // Predicted reduction from the linear model: ||r||^2 - ||r + J step||^2.
         let mut predicted = 0.0;
         for i in 0..k {
@@ -221,7 +223,7 @@ pub fn solve<P: LeastSquaresProblem + ?Sized>(
             .sqrt();
         let snorm = step_scaled.norm();
         for j in 0..n {
-            p_trial[j] = params[j] + step[j];
+            p_trial[j] = params[j] + step_scaled[j] / scale[j];
         }
         evaluations += 1;
         let ok = problem.residuals(&p_trial, &mut r_trial).is_some()
@@ -234,7 +236,6 @@ pub fn solve<P: LeastSquaresProblem + ?Sized>(
             -1.0
         };
         if ok && actual > 0.0 && rho > 1e-4 {
-            let mut jac_trial = DMatrix::zeros(m, n);
             if problem.jacobian(&p_trial, &mut jac_trial).is_none()
                 || jac_trial.iter().any(|v| !v.is_finite())
             {
@@ -244,7 +245,7 @@ pub fn solve<P: LeastSquaresProblem + ?Sized>(
             } else {
                 std::mem::swap(&mut params, &mut p_trial);
                 std::mem::swap(&mut r, &mut r_trial);
-                jac = jac_trial;
+                std::mem::swap(&mut jac, &mut jac_trial);
                 let old_cost = cost;
                 cost = cost_trial;
                 mu *= f64::max(1.0 / 3.0, 1.0 - (2.0 * rho - 1.0).powi(3));
