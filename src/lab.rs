@@ -10,6 +10,7 @@ use chrono::{DateTime, Utc};
 use serde::{Deserialize, Serialize};
 
 use crate::engine::calibration::{ModelKind, Weighting};
+use crate::engine::qc::{Rule, RuleSetting};
 
 /// The schema version written into every saved lab and export.
 pub const SCHEMA_VERSION: u32 = 1;
@@ -64,6 +65,25 @@ pub struct TestSetup {
     pub wavelength_nm: f64,
     /// Upper limit of linearity from the maker's instructions.
     pub linearity_limit: Option<f64>,
+    /// The QC rules the lab applies to this test, with their actions.
+    #[serde(default = "default_qc_rules")]
+    pub qc_rules: Vec<RuleSetting>,
+}
+
+/// 1-2s warning; 1-3s, 2-2s, R-4s, 4-1s, 10-x rejection: the two-level multirule
+/// procedure as published (Westgard et al., Clin Chem 1981). The lab may change it.
+pub fn default_qc_rules() -> Vec<RuleSetting> {
+    [
+        Rule::OneTwoS,
+        Rule::OneThreeS,
+        Rule::TwoTwoS,
+        Rule::RangeFourS,
+        Rule::FourOneS,
+        Rule::TenX,
+    ]
+    .into_iter()
+    .map(RuleSetting::default_for)
+    .collect()
 }
 
 /// One control level of one test, with its target.
@@ -106,6 +126,16 @@ pub enum MaterialKind {
     Reagent,
     Calibrator,
     Control,
+}
+
+/// A test's control levels and runs lined up for the QC engine.
+#[derive(Debug, Clone)]
+pub struct ControlHistory<'a> {
+    pub levels: Vec<&'a ControlLevel>,
+    pub runs: Vec<&'a ControlRun>,
+    pub targets: Vec<crate::engine::qc::LevelTarget>,
+    /// values[run][level]
+    pub values: Vec<Vec<Option<f64>>>,
 }
 
 /// Everything one lab keeps.
@@ -176,6 +206,40 @@ impl Lab {
             .collect();
         runs.sort_by_key(|r| r.run_at);
         runs
+    }
+
+    /// A test's QC history in the engine's terms: the level targets and, per run
+    /// (oldest first), each level's value in set-up order (`None` where not run).
+    pub fn control_history(&self, test_id: &str) -> ControlHistory<'_> {
+        let levels = self.levels_of(test_id);
+        let runs = self.runs_of(test_id);
+        let values = runs
+            .iter()
+            .map(|r| {
+                levels
+                    .iter()
+                    .map(|l| {
+                        r.level_ids
+                            .iter()
+                            .position(|id| *id == l.meta.id)
+                            .and_then(|k| r.values.get(k).copied().flatten())
+                    })
+                    .collect()
+            })
+            .collect();
+        let targets = levels
+            .iter()
+            .map(|l| crate::engine::qc::LevelTarget {
+                mean: l.mean,
+                sd: l.sd,
+            })
+            .collect();
+        ControlHistory {
+            levels,
+            runs,
+            targets,
+            values,
+        }
     }
 }
 

@@ -21,7 +21,8 @@
 //! * **across runs and levels**: all results in run order, levels in their set-up order
 //!   inside a run (4-1s over two runs of two levels).
 //!
-//! A missing level is skipped, not counted. A violation belongs to the run that
+//! The third reading is reported only when the first two did not already find the
+//! same rule broken in that run. A missing level is skipped, not counted. A violation belongs to the run that
 //! completes it: its window ends with that run's results. Every rule is checked on
 //! every run (the 1981 chart used 1-2s only as a trigger for the others; computers
 //! can apply all of them). Each rule's action, warning or rejection, is the lab's
@@ -284,8 +285,8 @@ pub struct Violation {
 }
 
 impl Violation {
-    /// A sentence for the technologist (levels and runs counted from 1).
-    pub fn explain(&self, level_names: &[String]) -> String {
+    /// A sentence for the technologist; `run_label` names a run (its date, say).
+    pub fn explain(&self, level_names: &[String], run_label: impl Fn(usize) -> String) -> String {
         let names: Vec<String> = self
             .levels
             .iter()
@@ -296,9 +297,14 @@ impl Violation {
                     .unwrap_or_else(|| format!("level {}", l + 1))
             })
             .collect();
-        let runs: Vec<String> = self.runs.iter().map(|r| (r + 1).to_string()).collect();
+        let runs: Vec<String> = self.runs.iter().map(|&r| run_label(r)).collect();
+        let scope = match self.scope {
+            Scope::WithinRun => "within the run",
+            Scope::AcrossRuns => "across runs",
+            Scope::AcrossRunsAndLevels => "across runs and levels",
+        };
         format!(
-            "{} ({}): {} — {}, run{} {}",
+            "{} ({}, {scope}): {} — {}; run{} {}",
             self.rule.code(),
             match self.action {
                 Action::Warning => "warning",
@@ -585,8 +591,11 @@ fn check_rule(
     }
     // Across runs and levels: the run-ordered sequence of all results. Only when the
     // window spans runs and levels (otherwise one of the scopes above already said it).
-    // Windows may end at any result of this run.
-    if n_levels > 1 {
+    // Windows may end at any result of this run. Reported only when the rule was not
+    // already broken within the run or within a level: the combined reading exists to
+    // catch what those miss, not to repeat them.
+    let already = out.iter().any(|v| v.rule == setting.rule);
+    if n_levels > 1 && !already {
         let first_of_run = history.len() - this_run.len();
         let mut found: Vec<Violation> = Vec::new();
         for end in first_of_run + 1..=history.len() {

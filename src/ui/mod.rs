@@ -10,6 +10,7 @@ use chrono::{Local, Utc};
 use leptos::prelude::*;
 
 use crate::engine::charts::LeveyJennings;
+use crate::engine::qc::{self, Decision};
 use crate::engine::stability::{self, StabilityState, WarningWindow};
 use crate::lab::Lab;
 use crate::store;
@@ -316,36 +317,93 @@ fn RunList(
             Some(l) if l.control_runs.is_empty() => {
                 view! { <EmptyState text="No QC runs recorded yet." /> }.into_any()
             }
-            Some(l) => {
-                let rows = l
-                    .tests
-                    .iter()
-                    .map(|t| {
-                        let runs = l.runs_of(&t.meta.id);
-                        let last = runs.last().map(|r| {
-                            r.run_at
-                                .with_timezone(&Local)
-                                .format("%Y-%m-%d %H:%M")
-                                .to_string()
-                        });
-                        view! {
-                            <tr>
-                                <td>{t.code.clone()}</td>
-                                <td>{runs.len()}</td>
-                                <td>{last.unwrap_or_else(|| "none".into())}</td>
-                            </tr>
-                        }
-                    })
-                    .collect_view();
-                view! {
-                    <table>
-                        <thead><tr><th>"Test"</th><th>"Runs"</th><th>"Last run"</th></tr></thead>
-                        <tbody>{rows}</tbody>
-                    </table>
-                }
-                .into_any()
-            }
+            Some(l) => l
+                .tests
+                .iter()
+                .map(|t| view! { <TestRuns lab=l.clone() test_id=t.meta.id.clone() /> })
+                .collect_view()
+                .into_any(),
         })
+    }
+}
+
+/// One test's QC runs, newest first, each with the engine's decision.
+#[component]
+fn TestRuns(
+    /// The lab.
+    lab: Lab,
+    /// Which test.
+    test_id: String,
+) -> impl IntoView {
+    let Some(test) = lab.tests.iter().find(|t| t.meta.id == test_id) else {
+        return ().into_any();
+    };
+    let history = lab.control_history(&test_id);
+    let names: Vec<String> = history.levels.iter().map(|l| l.name.clone()).collect();
+    let verdicts = qc::evaluate(&history.targets, &history.values, &test.qc_rules);
+    let run_dates: Vec<String> = history
+        .runs
+        .iter()
+        .map(|r| r.run_at.with_timezone(&Local).format("%d %b").to_string())
+        .collect();
+    let rows = match verdicts {
+        Err(e) => view! { <tr><td colspan="4">{format!("QC cannot be evaluated: {e}")}</td></tr> }
+            .into_any(),
+        Ok(verdicts) => history
+            .runs
+            .iter()
+            .zip(&history.values)
+            .zip(verdicts)
+            .rev()
+            .map(|((run, values), verdict)| {
+                let shown: Vec<String> = values
+                    .iter()
+                    .zip(&history.targets)
+                    .map(|(v, t)| match v {
+                        Some(v) => format!("{v} ({:+.1} SD)", qc::z_score(*v, *t)),
+                        None => "not run".into(),
+                    })
+                    .collect();
+                let why: Vec<String> = verdict
+                    .violations
+                    .iter()
+                    .map(|v| v.explain(&names, |r| run_dates.get(r).cloned().unwrap_or_default()))
+                    .collect();
+                let decision = verdict.decision;
+                view! {
+                    <tr class=format!("decision-{}", decision.code()) data-testid="qc-run">
+                        <td>{run.run_at.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()}</td>
+                        <td>{run.meta.by.clone()}</td>
+                        <td>{shown.join(" · ")}</td>
+                        <td>
+                            <strong data-testid="qc-decision">{decision_words(decision)}</strong>
+                            <ul>{why.into_iter().map(|w| view! { <li>{w}</li> }).collect_view()}</ul>
+                        </td>
+                    </tr>
+                }
+            })
+            .collect_view()
+            .into_any(),
+    };
+    let rules: Vec<&str> = test.qc_rules.iter().map(|r| r.rule.code()).collect();
+    view! {
+        <section class="card wide">
+            <h3>{format!("{} {}", test.code, test.name)}</h3>
+            <p class="muted">{format!("Levels: {}. Rules: {}.", names.join(", "), rules.join(", "))}</p>
+            <table>
+                <thead><tr><th>"Run"</th><th>"By"</th><th>"Control results"</th><th>"Decision"</th></tr></thead>
+                <tbody>{rows}</tbody>
+            </table>
+        </section>
+    }
+    .into_any()
+}
+
+fn decision_words(d: Decision) -> &'static str {
+    match d {
+        Decision::Accept => "accept",
+        Decision::Warning => "warning: inspect before releasing",
+        Decision::Reject => "reject: hold patient results",
     }
 }
 
@@ -363,23 +421,15 @@ fn ControlCharts(
                 .tests
                 .iter()
                 .flat_map(|t| {
-                    let runs = l.runs_of(&t.meta.id);
-                    l.levels_of(&t.meta.id)
-                        .into_iter()
-                        .filter_map(|level| {
-                            let values: Vec<Option<f64>> = runs
-                                .iter()
-                                .map(|r| {
-                                    r.level_ids
-                                        .iter()
-                                        .position(|id| *id == level.meta.id)
-                                        .and_then(|k| r.values.get(k).copied().flatten())
-                                })
-                                .collect();
+                    let h = l.control_history(&t.meta.id);
+                    (0..h.levels.len())
+                        .filter_map(|k| {
+                            let values: Vec<Option<f64>> =
+                                h.values.iter().map(|run| run[k]).collect();
                             LeveyJennings::new(
-                                &format!("{} {} ({})", t.code, level.name, t.unit),
-                                level.mean,
-                                level.sd,
+                                &format!("{} {} ({})", t.code, h.levels[k].name, t.unit),
+                                h.targets[k].mean,
+                                h.targets[k].sd,
                                 &values,
                             )
                         })

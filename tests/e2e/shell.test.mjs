@@ -78,3 +78,22 @@ test("the demo lab loads from the embedded file and draws control charts", async
     await context.close();
   }
 });
+
+test("QC runs show the engine's decision for every run of the demo lab", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "nav-runs").click();
+    const runs = byTestId(page, "qc-run");
+    await runs.first().waitFor();
+    // 26 invented runs for each of the 3 demo tests.
+    assert.equal(await runs.count(), 78);
+    const decisions = await byTestId(page, "qc-decision").allInnerTexts();
+    assert.ok(decisions.every((d) => /^(accept|warning|reject)/.test(d)), decisions.join("|"));
+    assert.ok(decisions.some((d) => d.startsWith("reject")), "the demo's shift should be rejected");
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
