@@ -28,7 +28,7 @@ Operations ("op"):
                   "weighting":"none|1/x|1/x2|1/y|1/y2","replicates":"individual|mean",
                   "points":[{"conc":0,"signal":0.01},...]}
                  -> {"params":{...},"std_errors":{...},"rss":..,"r_squared":..,
-                     "points":[{"conc","signal","fitted","back_calculated","recovery_pct"}]}
+                     "points":[{"conc","signal","fitted","residual","back_calculated","recovery_pct"}]}
                  params: factor {factor} (conc per signal unit); linear and
                  linear-through-origin {slope,intercept} (signal = intercept + slope*conc);
                  quadratic {c0,c1,c2}; 4pl {a,b,c,d}: signal = d + (a-d)/(1+(conc/c)^b);
@@ -216,6 +216,7 @@ fn op_fit(obj: &Map<String, Value>) -> R<Value> {
         .map(|p| {
             json!({
                 "conc": p.conc, "signal": p.signal, "fitted": finite_or_null(p.fitted),
+                "residual": finite_or_null(p.residual),
                 "back_calculated": p.back_calculated, "recovery_pct": p.recovery_pct,
             })
         })

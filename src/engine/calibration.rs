@@ -459,6 +459,8 @@ pub struct FittedPoint {
     pub signal: f64,
     /// Signal the curve gives at `conc`.
     pub fitted: f64,
+    /// signal − fitted (unweighted).
+    pub residual: f64,
     /// Concentration the curve gives for `signal`.
     pub back_calculated: Option<f64>,
     /// back_calculated / conc × 100; `None` at conc 0.
@@ -480,6 +482,18 @@ pub struct Fit {
     pub points: Vec<FittedPoint>,
     /// Residual evaluations used by the iterative fit (0 for closed-form fits).
     pub evaluations: usize,
+}
+
+impl ReportableRange {
+    /// From the lowest calibrator up to the highest calibrator or the stated linearity
+    /// limit, whichever is lower: results are never reported beyond either.
+    pub fn for_fit(fit: &Fit, linearity_limit: Option<f64>) -> ReportableRange {
+        let r = fit.calibrated_range();
+        ReportableRange {
+            low: r.low,
+            high: linearity_limit.map_or(r.high, |l| l.min(r.high)),
+        }
+    }
 }
 
 impl Fit {
@@ -670,6 +684,7 @@ pub fn fit(
                 conc: p.conc,
                 signal: p.signal,
                 fitted: f,
+                residual: p.signal - f,
                 back_calculated: back,
                 recovery_pct: back.filter(|_| p.conc > 0.0).map(|b| b / p.conc * 100.0),
             }
@@ -1037,6 +1052,25 @@ mod tests {
         };
         assert!((factor - 100.0 / 0.252).abs() < 1e-9);
         assert!((f.curve.conc_at(0.126, 50.0).unwrap() - 50.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn reportable_range_stops_at_the_lower_of_top_calibrator_and_linearity() {
+        let f = fit(
+            ModelKind::Linear,
+            Weighting::None,
+            ReplicateUse::Individual,
+            &pts(&[(0.0, 0.01), (200.0, 0.41), (400.0, 0.81)]),
+        )
+        .unwrap();
+        assert_eq!(ReportableRange::for_fit(&f, Some(300.0)).high, 300.0);
+        assert_eq!(ReportableRange::for_fit(&f, Some(500.0)).high, 400.0);
+        assert_eq!(ReportableRange::for_fit(&f, None).high, 400.0);
+        let r = f
+            .curve
+            .read(0.71, ReportableRange::for_fit(&f, Some(300.0)));
+        assert_eq!(r.flag, Some(ConcFlag::AboveRange));
+        assert!((f.points[1].residual).abs() < 1e-12);
     }
 
     #[test]

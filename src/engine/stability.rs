@@ -526,6 +526,23 @@ mod tests {
             .remarks
             .iter()
             .any(|s| s.contains("thawed after")));
+        // Thawed within its frozen stability but after the maker's expiry: the label wins.
+        let mut late = base.clone();
+        late.expiry = "2026-11".parse().unwrap();
+        if let Some(f) = late.frozen.as_mut() {
+            f.frozen_at = utc("2026-11-20T10:00:00Z");
+            f.thawed_at = Some(utc("2026-12-01T06:00:00Z"));
+        }
+        let r = evaluate(
+            &late,
+            utc("2026-12-01T07:00:00Z"),
+            &Utc,
+            WarningWindow::default(),
+        )
+        .unwrap();
+        assert_eq!(r.material.governed_by, Limit::MakerExpiry);
+        assert_eq!(r.material.state, StabilityState::Expired);
+        assert_eq!(r.material.until, utc("2026-12-01T00:00:00Z"));
         // Thawed twice: discard from the moment of thawing.
         let mut twice = base.clone();
         if let Some(f) = twice.frozen.as_mut() {
