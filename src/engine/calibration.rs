@@ -892,6 +892,19 @@ impl LeastSquaresProblem for LogisticProblem<'_> {
     }
 }
 
+fn termination_words(t: lm::Termination) -> &'static str {
+    use lm::Termination::*;
+    match t {
+        TooManyEvaluations => "it ran out of iterations",
+        BadStart => "the starting curve could not be evaluated",
+        Stuck => "no change of the parameters improved it",
+        BadInput => "the input cannot be fitted",
+        ConvergedSumOfSquares | ConvergedStep | ConvergedGradient | NoFurtherReduction => {
+            "converged"
+        }
+    }
+}
+
 /// Starting values for a 4PL from the data: asymptotes just beyond the extreme mean
 /// signals, c where the signal crosses half-way (log-interpolated), b from the
 /// logit-log regression of the points in between.
@@ -998,13 +1011,30 @@ fn logistic_fit(
         return Err(CalibrationError::new(
             CalErrorKind::NoConvergence,
             format!(
-                "the {} fit did not converge ({last_reason:?}); check the calibrator values and \
-                 readings, or use a model with fewer parameters",
-                model.code()
+                "the {} fit did not converge ({}); the readings may not follow an S-shaped \
+                 curve: check the calibrator values and readings, or use a linear or quadratic \
+                 model",
+                model.code(),
+                termination_words(last_reason)
             ),
         ));
     };
     let p = &rep.params;
+    // A mid-point far outside the calibrators means the data do not define the curve.
+    let positive = x.iter().copied().filter(|&v| v > 0.0);
+    let lowest = positive.clone().fold(f64::INFINITY, f64::min);
+    let highest = positive.fold(0.0_f64, f64::max);
+    if !(p[2] >= lowest / 100.0 && p[2] <= highest * 100.0) {
+        return Err(CalibrationError::new(
+            CalErrorKind::Undetermined,
+            format!(
+                "the {} mid-point c = {:.3e} lies far outside the calibrators ({lowest}–{highest}): \
+                 these calibrators do not define the curve; check the readings or use another model",
+                model.code(),
+                p[2]
+            ),
+        ));
+    }
     let curve = if model == ModelKind::FivePl {
         Curve::FivePl {
             a: p[0],
@@ -1071,6 +1101,38 @@ mod tests {
             .read(0.71, ReportableRange::for_fit(&f, Some(300.0)));
         assert_eq!(r.flag, Some(ConcFlag::AboveRange));
         assert!((f.points[1].residual).abs() < 1e-12);
+    }
+
+    /// A straight line has no finite 4PL optimum and zig-zag readings no sensible one:
+    /// both are refused with a reason instead of returning a nonsense curve.
+    #[test]
+    fn logistic_refuses_data_that_do_not_define_a_curve() {
+        let line = pts(&[
+            (0.0, 0.0),
+            (1.0, 0.1),
+            (2.0, 0.2),
+            (3.0, 0.3),
+            (4.0, 0.4),
+            (5.0, 0.5),
+        ]);
+        let zigzag = pts(&[(0.0, 0.1), (1.0, 0.9), (2.0, 0.2), (3.0, 1.0), (4.0, 0.15)]);
+        for data in [line, zigzag] {
+            let e = fit(
+                ModelKind::FourPl,
+                Weighting::None,
+                ReplicateUse::Individual,
+                &data,
+            )
+            .unwrap_err();
+            assert!(
+                matches!(
+                    e.kind,
+                    CalErrorKind::NoConvergence | CalErrorKind::Undetermined
+                ),
+                "{e:?}"
+            );
+            assert!(e.message.contains("model"), "{}", e.message);
+        }
     }
 
     #[test]

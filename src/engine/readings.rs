@@ -145,6 +145,8 @@ pub enum KineticFlag {
     InitialAbsorbanceLow,
     /// Absorbance moved against the test's direction.
     WrongDirection,
+    /// Only two readings: one interval, nothing to compare it with.
+    LinearityNotChecked,
 }
 
 impl KineticFlag {
@@ -160,6 +162,9 @@ impl KineticFlag {
                  reading; dilute the sample and repeat"
             }
             KineticFlag::WrongDirection => "the absorbance moved the wrong way for this test",
+            KineticFlag::LinearityNotChecked => {
+                "only two readings: linearity could not be checked; take 3 or more readings"
+            }
         }
     }
 }
@@ -211,10 +216,10 @@ pub fn kinetic(
                 .is_none_or(|(lo, hi)| p.t_s >= lo && p.t_s <= hi)
         })
         .collect();
-    if used.len() < 3 {
+    if used.len() < 2 {
         return Err(ReadingError(format!(
-            "a kinetic result needs at least 3 readings in the measuring window (2 intervals) to \
-             check linearity; {} given",
+            "a kinetic result needs at least 2 readings in the measuring window (3 or more to \
+             check linearity); {} given",
             used.len()
         )));
     }
@@ -243,6 +248,9 @@ pub fn kinetic(
         None => steps.iter().all(|s| *s == 0.0),
     };
     let mut flags = Vec::new();
+    if used.len() == 2 {
+        flags.push(KineticFlag::LinearityNotChecked);
+    }
     if !linear {
         flags.push(KineticFlag::NotLinear);
     }
@@ -459,6 +467,9 @@ mod tests {
             ..s
         };
         assert!(kinetic(&lag, &w).unwrap().linear);
+        let two = kinetic(&pts(&[(0.0, 1.5), (60.0, 1.45)]), &s).unwrap();
+        assert!(two.flags.contains(&KineticFlag::LinearityNotChecked));
+        assert!(kinetic(&pts(&[(0.0, 1.5)]), &s).is_err());
         let e = kinetic(&pts(&[(0.0, 1.0), (0.0, 0.9), (60.0, 0.8)]), &s).unwrap_err();
         assert!(e.0.contains("readings[1]"), "{}", e.0);
     }
