@@ -161,17 +161,7 @@ pub fn solve<P: LeastSquaresProblem + ?Sized>(
                 break Termination::ConvergedGradient;
             }
             // Gradient test: cosine between r and each column of J.
-            let rnorm = cost.sqrt();
-            let mut gmax = 0.0_f64;
-            for j in 0..n {
-                let col = jac.column(j);
-                let cn = col.norm();
-                if cn > 0.0 {
-                    let dot: f64 = col.iter().zip(&r).map(|(a, b)| a * b).sum();
-                    gmax = gmax.max((dot / (cn * rnorm)).abs());
-                }
-            }
-            if gmax <= settings.gtol {
+            if relative_gradient(&jac, &r) <= settings.gtol {
                 break Termination::ConvergedGradient;
             }
             let mut scaled = jac.clone();
