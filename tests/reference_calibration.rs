@@ -210,8 +210,13 @@ def f5(x, a, b, c, dd, g):
 out = {}
 with warnings.catch_warnings():
     warnings.simplefilter("ignore")
-    p4, _ = curve_fit(f4, x, y, p0=[8, 2, 3, 0.5], maxfev=20000)
-    out["4pl"] = {"params": list(p4), "rss": float(np.sum((y - f4(x, *p4)) ** 2))}
+    p4, c4 = curve_fit(f4, x, y, p0=[8, 2, 3, 0.5], maxfev=20000)
+    out["4pl"] = {"params": list(p4), "rss": float(np.sum((y - f4(x, *p4)) ** 2)),
+                  "se": list(np.sqrt(np.diag(c4)))}
+    # Weighted 1/y: curve_fit's sigma scales residuals by 1/sigma, so sigma = sqrt(y).
+    pw, cw = curve_fit(f4, x, y, p0=[8, 2, 3, 0.5], sigma=np.sqrt(y), maxfev=20000)
+    out["4pl_1/y"] = {"params": list(pw), "rss": float(np.sum((y - f4(x, *pw)) ** 2 / y)),
+                      "se": list(np.sqrt(np.diag(cw)))}
     p5, _ = curve_fit(f5, x, y, p0=list(p4) + [1.0], maxfev=20000)
     out["5pl"] = {"params": list(p5), "rss": float(np.sum((y - f5(x, *p5)) ** 2))}
 print(json.dumps(out))
@@ -241,17 +246,41 @@ fn ryegrass_logistic_no_worse_than_scipy() {
             their_rss
         );
         if model == ModelKind::FourPl {
-            // Same optimum: parameters agree with scipy's to 1e-5 relative.
-            for (a, b) in f
-                .curve
-                .param_values()
-                .iter()
-                .zip(scipy[key]["params"].as_array().unwrap())
-            {
-                let b = b.as_f64().unwrap();
-                assert!((a - b).abs() <= 1e-5 * b.abs(), "{key}: {a} vs scipy {b}");
-            }
+            same_optimum(&f, &scipy[key], key);
         }
+    }
+    // Weighted 1/y: the weighted RSS no larger than scipy's, the same optimum.
+    let f = fit(
+        ModelKind::FourPl,
+        Weighting::InvY,
+        ReplicateUse::Individual,
+        &points(&x, &y),
+    )
+    .expect("fit");
+    let their_rss = scipy["4pl_1/y"]["rss"].as_f64().unwrap();
+    println!(
+        "ryegrass 4pl 1/y: ours weighted RSS {:.12}, scipy {:.12}",
+        f.rss, their_rss
+    );
+    assert!(f.rss <= their_rss * (1.0 + 1e-9));
+    same_optimum(&f, &scipy["4pl_1/y"], "4pl 1/y");
+}
+
+/// Parameters agree with scipy's to 1e-5 relative; standard errors (scipy's pcov scaled
+/// by the residual variance, as ours are) to 1e-3.
+fn same_optimum(f: &cuvette::engine::calibration::Fit, scipy: &serde_json::Value, key: &str) {
+    for (a, b) in f
+        .curve
+        .param_values()
+        .iter()
+        .zip(scipy["params"].as_array().unwrap())
+    {
+        let b = b.as_f64().unwrap();
+        assert!((a - b).abs() <= 1e-5 * b.abs(), "{key}: {a} vs scipy {b}");
+    }
+    for (a, b) in f.std_errors.iter().zip(scipy["se"].as_array().unwrap()) {
+        let (a, b) = (a.expect("standard error"), b.as_f64().unwrap());
+        assert!((a - b).abs() <= 1e-3 * b, "{key} SE: {a} vs scipy {b}");
     }
 }
 
