@@ -55,7 +55,9 @@ Operations ("op"):
                   "levels":[{"mean":..,"sd":..},...],"runs":[[v1,v2],[v1,null],...]}
                  a rule may also be {"rule":"2-2s","action":"warning|reject"};
                  rules: 1-2s 1-2.5s 1-3s 1-3.5s 2-2s R-4s 4-1s 2of3-2s 3-1s 6-x 8-x
-                 9-x 10-x 12-x (1-2s warns by default, the others reject)
+                 9-x 10-x 12-x (1-2s warns by default, the others reject);
+                 optional "restart_after_reject": true starts the across-run windows
+                 afresh after a rejected run (default false: every result counts)
                  -> {"runs":[{"decision":"accept|warning|reject",
                      "violations":[{"rule","levels","runs","scope","action"}]}]}
 
@@ -404,7 +406,14 @@ fn op_qc(obj: &Map<String, Value>) -> R<Value> {
                 .collect::<R<Vec<_>>>()
         })
         .collect::<R<Vec<_>>>()?;
-    let verdicts = qc::evaluate(&levels, &runs, &rules).map_err(|e| e.0)?;
+    let options = qc::Options {
+        restart_after_reject: match obj.get("restart_after_reject") {
+            None | Some(Value::Null) => false,
+            Some(Value::Bool(b)) => *b,
+            Some(_) => return Err("restart_after_reject: true or false".into()),
+        },
+    };
+    let verdicts = qc::evaluate_with(&levels, &runs, &rules, options).map_err(|e| e.0)?;
     let runs: Vec<Value> = verdicts
         .iter()
         .map(|v| {

@@ -342,3 +342,24 @@ fn statistics_agree_with_numpy() {
         assert!((s.sd.unwrap() - sd).abs() <= 1e-9 * sd);
     }
 }
+
+/// With restart-after-reject, the runs after a rejection are judged on their own:
+/// +2.2 SD in the run after a 2-2s rejection is only a 1-2s warning, not another 2-2s.
+#[test]
+fn restart_after_reject_starts_the_windows_afresh() {
+    use cuvette::engine::qc::{evaluate_with, Options};
+    let (t, v) = runs(&[&[2.2, 0.0], &[2.3, 0.0], &[2.4, 0.0]]);
+    let keep = evaluate_with(&t, &v, &rules(WESTGARD), Options::default()).unwrap();
+    assert_eq!(keep[2].decision, Decision::Reject);
+    let restart = evaluate_with(
+        &t,
+        &v,
+        &rules(WESTGARD),
+        Options {
+            restart_after_reject: true,
+        },
+    )
+    .unwrap();
+    assert_eq!(restart[1].decision, Decision::Reject);
+    assert_eq!(restart[2].decision, Decision::Warning);
+}

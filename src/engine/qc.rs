@@ -22,7 +22,9 @@
 //!   inside a run (4-1s over two runs of two levels).
 //!
 //! The third reading is reported only when the first two did not already find the
-//! same rule broken in that run. A missing level is skipped, not counted. A violation belongs to the run that
+//! same rule broken in that run. A missing level is skipped, not counted. By default
+//! every earlier result counts, also those of rejected runs; [`Options`] can start the
+//! windows afresh after a rejection (once the cause was corrected). A violation belongs to the run that
 //! completes it: its window ends with that run's results. Every rule is checked on
 //! every run (the 1981 chart used 1-2s only as a trigger for the others; computers
 //! can apply all of them). Each rule's action, warning or rejection, is the lab's
@@ -357,12 +359,31 @@ struct Obs {
     z: f64,
 }
 
+/// How rule windows treat earlier runs.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+pub struct Options {
+    /// After a rejected run (and the corrective action that follows it), start the
+    /// across-run windows afresh with the next run instead of counting the results
+    /// from before. Off by default: "consecutive" then means every result in order.
+    pub restart_after_reject: bool,
+}
+
 /// Evaluate every run in order; run `r`'s verdict uses runs `0..=r`.
 /// `runs[r][l]` is level `l`'s value in run `r` (`None` = not run).
 pub fn evaluate(
     targets: &[LevelTarget],
     runs: &[Vec<Option<f64>>],
     rules: &[RuleSetting],
+) -> Result<Vec<RunVerdict>, QcError> {
+    evaluate_with(targets, runs, rules, Options::default())
+}
+
+/// [`evaluate`] with [`Options`].
+pub fn evaluate_with(
+    targets: &[LevelTarget],
+    runs: &[Vec<Option<f64>>],
+    rules: &[RuleSetting],
+    options: Options,
 ) -> Result<Vec<RunVerdict>, QcError> {
     if targets.is_empty() {
         return Err(QcError(
@@ -402,12 +423,13 @@ pub fn evaluate(
     }
     let mut verdicts = Vec::with_capacity(runs.len());
     let mut end = 0; // obs[..end] are the results up to and including run r
+    let mut first = 0; // obs[first..] count (moves on after a rejection when restarting)
     for r in 0..runs.len() {
         let start_of_run = end;
         while end < obs.len() && obs[end].run == r {
             end += 1;
         }
-        let history = &obs[..end];
+        let history = &obs[first..end];
         let this_run = &obs[start_of_run..end];
         let mut violations = Vec::new();
         for setting in rules {
@@ -419,6 +441,9 @@ pub fn evaluate(
                 Action::Reject => Decision::Reject,
             })
         });
+        if options.restart_after_reject && decision == Decision::Reject {
+            first = end;
+        }
         verdicts.push(RunVerdict {
             decision,
             violations,
