@@ -73,6 +73,21 @@ pub fn cumulative(results: &[ControlResult]) -> Option<Summary> {
     summarize(&counted(results))
 }
 
+/// Statistics of the results that count with `from <= at < to` (any period: a week,
+/// a reagent lot's time in use, an assessor's sample).
+pub fn between(
+    results: &[ControlResult],
+    from: DateTime<Utc>,
+    to: DateTime<Utc>,
+) -> Option<Summary> {
+    let in_period: Vec<ControlResult> = results
+        .iter()
+        .copied()
+        .filter(|r| r.at >= from && r.at < to)
+        .collect();
+    cumulative(&in_period)
+}
+
 /// Statistics per calendar month ("YYYY-MM" in the lab's local time), oldest first.
 pub fn by_month<Tz: TimeZone>(results: &[ControlResult], tz: &Tz) -> Vec<(String, Summary)> {
     let mut months: Vec<(String, Vec<f64>)> = Vec::new();
@@ -192,6 +207,8 @@ mod tests {
         let t = choose_target(insert, &results).unwrap();
         assert_eq!(t.source, TargetSource::Lab { n: 20 });
         assert!(t.mean > 100.0 && t.mean < 102.0);
+        let first_week = between(&results, at(0), at(7)).unwrap();
+        assert_eq!(first_week.n, 7);
         let months = by_month(&results, &Utc);
         assert_eq!(
             months.iter().map(|m| m.0.as_str()).collect::<Vec<_>>(),
