@@ -17,6 +17,10 @@ as_root() {
 }
 
 need_build_tools() {
+  if ! grep -q "^wasm_bindgen = \"$WASM_BINDGEN_VERSION\"" Trunk.toml; then
+    echo "Trunk.toml [tools] wasm_bindgen must equal the wasm-bindgen in Cargo.lock ($WASM_BINDGEN_VERSION)" >&2
+    exit 1
+  fi
   if ! rustup target list --installed | grep -qx wasm32-unknown-unknown; then
     say "adding the wasm32 target"
     rustup target add wasm32-unknown-unknown
