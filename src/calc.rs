@@ -45,6 +45,9 @@ Operations ("op"):
                  "direction":"increasing|decreasing", "initial_floor" (decreasing only)
                  -> {"delta_a_per_min","activity","linear","max_step_deviation_pct",
                      "steps_per_min","flags"}   (activity = |dA/min| * factor)
+                 dA/min is the least-squares slope; each step (A[i+1]-A[i]) per minute is
+                 compared with it: max_step_deviation_pct = max |step - slope| / |slope| * 100,
+                 linear = max_step_deviation_pct <= linearity_limit_pct
 
   enzyme-factor  {"op":"enzyme-factor","total_volume_ml":1.1,"sample_volume_ml":0.1,
                   "path_cm":1,"epsilon":6220}
@@ -84,6 +87,10 @@ Operations ("op"):
                  -> {"delta_a","signal","wrong_direction"}
   dilution       {"op":"dilution","estimate":..,"linearity_limit":..}
                  -> {"factor","expected_reading"} or {"factor":null} when none is needed
+                 {"op":"dilution","diluted_reading":..,"factor":5,"linearity_limit":..}
+                 -> {"result": reading*factor, "diluted_reading_within_limit"}
+  flag           {"op":"flag","value":..,"reference":{"low","high"},"critical":{"low","high"}}
+                 -> {"flag": "L"|"H"|"LL"|"HH"|null, "meaning"}
   convert        {"op":"convert","analyte":"GLU","value":..,"from":"mg/dL","to":"mmol/L"}
                  -> {"value": ..}
 "#;
@@ -119,10 +126,11 @@ fn answer(input: &str) -> R<Value> {
         "end-point" => op_end_point(obj),
         "fixed-time" => op_fixed_time(obj),
         "dilution" => op_dilution(obj),
+        "flag" => op_flag(obj),
         "convert" => op_convert(obj),
         other => Err(format!(
             "op: {other:?} is not an operation; use fit, inverse, kinetic, enzyme-factor, qc, \
-             qc-stats, stability, end-point, fixed-time, dilution or convert"
+             qc-stats, stability, end-point, fixed-time, dilution, flag or convert"
         )),
     }
 }
@@ -561,6 +569,17 @@ fn op_fixed_time(obj: &Map<String, Value>) -> R<Value> {
 }
 
 fn op_dilution(obj: &Map<String, Value>) -> R<Value> {
+    // The result of a dilution already made: reading × factor.
+    if let Some(reading) = opt_num(obj.get("diluted_reading"), "diluted_reading")? {
+        let factor = num(obj.get("factor"), "factor")?;
+        let result =
+            readings::undiluted(reading, factor).map_err(|e| format!("factor: {}", e.0))?;
+        let mut answer = json!({ "result": result, "factor": factor });
+        if let Some(limit) = opt_num(obj.get("linearity_limit"), "linearity_limit")? {
+            answer["diluted_reading_within_limit"] = json!(reading <= limit);
+        }
+        return Ok(answer);
+    }
     let estimate = num(obj.get("estimate"), "estimate")?;
     let limit = num(obj.get("linearity_limit"), "linearity_limit")?;
     if limit <= 0.0 {
@@ -573,6 +592,30 @@ fn op_dilution(obj: &Map<String, Value>) -> R<Value> {
         }
         None => json!({ "factor": null, "reason": "more than 1:100 needed: dilute in steps" }),
     })
+}
+
+fn limits(obj: &Map<String, Value>, field: &str) -> R<readings::Limits> {
+    match obj.get(field) {
+        None | Some(Value::Null) => Ok(readings::Limits::default()),
+        Some(l) => Ok(readings::Limits {
+            low: opt_num(l.get("low"), &format!("{field}.low"))?,
+            high: opt_num(l.get("high"), &format!("{field}.high"))?,
+        }),
+    }
+}
+
+fn op_flag(obj: &Map<String, Value>) -> R<Value> {
+    let value = num(obj.get("value"), "value")?;
+    let f = readings::flag(value, limits(obj, "reference")?, limits(obj, "critical")?);
+    Ok(json!({
+        "flag": f.map(|f| f.letter()),
+        "meaning": f.map(|f| match f {
+            readings::ResultFlag::Low => "below the reference interval",
+            readings::ResultFlag::High => "above the reference interval",
+            readings::ResultFlag::CriticalLow => "below the critical limit: tell the clinician now",
+            readings::ResultFlag::CriticalHigh => "above the critical limit: tell the clinician now",
+        }),
+    }))
 }
 
 fn op_convert(obj: &Map<String, Value>) -> R<Value> {
@@ -640,6 +683,21 @@ mod tests {
         assert_eq!(r[0]["flag"], Value::Null);
         assert_eq!(r[1]["flag"], "above-range");
         assert_eq!(r[2]["flag"], "below-range");
+    }
+
+    #[test]
+    fn dilution_and_flag() {
+        let v = ok(json!({"op":"dilution","estimate":1150,"linearity_limit":500}));
+        assert_eq!(v["factor"], 3);
+        let v = ok(json!({"op":"dilution","diluted_reading":212,"factor":5,"linearity_limit":500}));
+        assert_eq!(v["result"], 1060.0);
+        assert_eq!(v["diluted_reading_within_limit"], true);
+        let v = ok(
+            json!({"op":"flag","value":35,"reference":{"low":70,"high":110},"critical":{"low":40}}),
+        );
+        assert_eq!(v["flag"], "LL");
+        let v = ok(json!({"op":"flag","value":90,"reference":{"low":70,"high":110}}));
+        assert_eq!(v["flag"], Value::Null);
     }
 
     #[test]
