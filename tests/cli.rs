@@ -40,6 +40,10 @@ fn help_lists_every_operation() {
         "qc",
         "stability",
         "qc-stats",
+        "end-point",
+        "fixed-time",
+        "dilution",
+        "flag",
         "convert",
     ] {
         assert!(text.contains(&format!("  {op} ")), "--help misses {op}");
