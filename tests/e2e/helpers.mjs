@@ -20,10 +20,12 @@ const FLAGS = [
   "--disable-background-networking", "--disable-component-update", "--disable-sync",
 ];
 
-/** Launch Chromium on `profile`, open the single file, wait for the app's <main>. */
-export async function openApp(profile) {
-  if (!existsSync(singleFile)) {
-    throw new Error(`${singleFile} is missing: build it with trunk build --release first`);
+/** Launch Chromium on `profile`, open the single file (or `file`), wait for the app's
+ *  <main>. `problems` collects console errors, page errors, failed requests and any
+ *  request that is not file: or data: (the app must need no network). */
+export async function openApp(profile, file = singleFile) {
+  if (!existsSync(file)) {
+    throw new Error(`${file} is missing: build it with trunk build --release first`);
   }
   const xdg = mkdtempSync(join(tmpdir(), "cuvette-xdg-"));
   const context = await chromium.launchPersistentContext(profile, {
@@ -39,7 +41,10 @@ export async function openApp(profile) {
   });
   page.on("pageerror", (err) => problems.push(`page error: ${err.message}`));
   page.on("requestfailed", (req) => problems.push(`request failed: ${req.url()}`));
-  await page.goto(fileUrl);
+  page.on("request", (req) => {
+    if (!/^(file|data):/.test(req.url())) problems.push(`network request: ${req.url()}`);
+  });
+  await page.goto(pathToFileURL(file).href);
   await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached", timeout: 20000 });
   return { context, page, problems };
 }

@@ -2,7 +2,10 @@
 // it saves across a reload and a browser restart, and logs no errors.
 import { test } from "node:test";
 import assert from "node:assert/strict";
-import { openApp, newProfile, byTestId } from "./helpers.mjs";
+import { copyFileSync, mkdtempSync } from "node:fs";
+import { tmpdir } from "node:os";
+import { join } from "node:path";
+import { openApp, newProfile, byTestId, singleFile } from "./helpers.mjs";
 
 test("the single file renders the app shell from file://", async () => {
   const { context, page, problems } = await openApp(newProfile());
@@ -92,6 +95,23 @@ test("QC runs show the engine's decision for every run of the demo lab", async (
     const decisions = await byTestId(page, "qc-decision").allInnerTexts();
     assert.ok(decisions.every((d) => /^(accept|warning|reject)/.test(d)), decisions.join("|"));
     assert.ok(decisions.some((d) => d.startsWith("reject")), "the demo's shift should be rejected");
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("a copy of the single file elsewhere (a USB stick) works on its own", async () => {
+  const stick = mkdtempSync(join(tmpdir(), "usb-stick-"));
+  const copy = join(stick, "Cuvette lab bench.html");
+  copyFileSync(singleFile, copy);
+  const { context, page, problems } = await openApp(newProfile(), copy);
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
+    await byTestId(page, "nav-charts").click();
+    await byTestId(page, "lj-chart").first().waitFor();
     assert.deepEqual(problems, []);
   } finally {
     await context.close();
