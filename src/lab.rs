@@ -138,6 +138,61 @@ pub struct ControlHistory<'a> {
     pub values: Vec<Vec<Option<f64>>>,
 }
 
+/// Anything with a [`RecordMeta`].
+pub trait Record {
+    fn meta(&self) -> &RecordMeta;
+}
+
+macro_rules! record {
+    ($($t:ty),*) => {
+        $(impl Record for $t {
+            fn meta(&self) -> &RecordMeta {
+                &self.meta
+            }
+        })*
+    };
+}
+record!(TestSetup, ControlLevel, ControlRun, MaterialRecord);
+
+/// What an import did, per kind of record.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct MergeCount {
+    /// Records this PC did not have.
+    pub added: usize,
+    /// Records changed more recently on the other PC.
+    pub updated: usize,
+    /// Records the same on both, or newer here (kept as they are).
+    pub kept: usize,
+}
+
+impl MergeCount {
+    fn add(&mut self, other: MergeCount) {
+        self.added += other.added;
+        self.updated += other.updated;
+        self.kept += other.kept;
+    }
+}
+
+/// Merge `incoming` into `ours` by record id: new ids are added, a record changed
+/// later elsewhere replaces ours, everything else stays.
+fn merge_records<T: Record + Clone + PartialEq>(ours: &mut Vec<T>, incoming: &[T]) -> MergeCount {
+    let mut count = MergeCount::default();
+    for theirs in incoming {
+        match ours.iter_mut().find(|o| o.meta().id == theirs.meta().id) {
+            None => {
+                ours.push(theirs.clone());
+                count.added += 1;
+            }
+            Some(mine) if theirs.meta().changed_at > mine.meta().changed_at => {
+                *mine = theirs.clone();
+                count.updated += 1;
+            }
+            Some(_) => count.kept += 1,
+        }
+    }
+    count
+}
+
 /// Everything one lab keeps.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Lab {
@@ -187,6 +242,23 @@ impl Lab {
             ));
         }
         Ok(lab)
+    }
+
+    /// Merge another PC's export into this lab, record by record (see
+    /// [`merge_records`]). The lab name and demo mark stay this PC's.
+    pub fn merge(&mut self, incoming: &Lab) -> MergeCount {
+        let mut total = MergeCount::default();
+        total.add(merge_records(&mut self.tests, &incoming.tests));
+        total.add(merge_records(
+            &mut self.control_levels,
+            &incoming.control_levels,
+        ));
+        total.add(merge_records(
+            &mut self.control_runs,
+            &incoming.control_runs,
+        ));
+        total.add(merge_records(&mut self.materials, &incoming.materials));
+        total
     }
 
     /// Control levels of a test, in the order they were set up.
@@ -268,6 +340,30 @@ mod tests {
         assert!(err.contains("newer Cuvette"), "{err}");
         let err = Lab::from_json("{ not json").unwrap_err();
         assert!(err.contains("line 1"), "{err}");
+    }
+
+    #[test]
+    fn merge_by_id_adds_new_and_takes_later_changes() {
+        let demo = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
+        let mut here = demo.clone();
+        here.control_runs.truncate(10);
+        let mut there = demo.clone();
+        let later = there.control_runs[0].meta.changed_at + chrono::Duration::hours(1);
+        there.control_runs[0].values[0] = Some(1.0);
+        there.control_runs[0].meta.changed_at = later;
+        // Older edit on the other PC must not win.
+        let earlier = there.control_runs[1].meta.changed_at - chrono::Duration::hours(1);
+        there.control_runs[1].values[0] = Some(2.0);
+        there.control_runs[1].meta.changed_at = earlier;
+        let count = here.merge(&there);
+        assert_eq!(count.added, demo.control_runs.len() - 10);
+        assert_eq!(count.updated, 1);
+        assert_eq!(here.control_runs.len(), demo.control_runs.len());
+        assert_eq!(here.control_runs[0].values[0], Some(1.0));
+        assert_ne!(here.control_runs[1].values[0], Some(2.0));
+        // Merging again changes nothing.
+        let again = here.merge(&there);
+        assert_eq!((again.added, again.updated), (0, 0));
     }
 
     #[test]

@@ -90,3 +90,39 @@ pub fn random_bytes() -> [u8; 16] {
     }
     bytes
 }
+
+/// Offer `text` as a file download named `filename` (the browser's usual save dialog
+/// or downloads folder; from there to the USB stick).
+pub fn download(filename: &str, mime: &str, text: &str) -> Result<(), StoreError> {
+    let fail = |what: &str| {
+        StoreError(format!(
+            "the file could not be offered for download ({what})"
+        ))
+    };
+    let window = web_sys::window().ok_or_else(|| fail("no window"))?;
+    let document = window.document().ok_or_else(|| fail("no document"))?;
+    let parts = js_sys::Array::of1(&wasm_bindgen::JsValue::from_str(text));
+    let options = web_sys::BlobPropertyBag::new();
+    options.set_type(mime);
+    let blob = web_sys::Blob::new_with_str_sequence_and_options(&parts, &options)
+        .map_err(|_| fail("blob"))?;
+    let url = web_sys::Url::create_object_url_with_blob(&blob).map_err(|_| fail("url"))?;
+    let anchor: web_sys::HtmlAnchorElement =
+        wasm_bindgen::JsCast::dyn_into(document.create_element("a").map_err(|_| fail("link"))?)
+            .map_err(|_| fail("link"))?;
+    anchor.set_href(&url);
+    anchor.set_download(filename);
+    anchor.click();
+    let _ = web_sys::Url::revoke_object_url(&url);
+    Ok(())
+}
+
+/// The text of a file the user picked.
+pub async fn read_text(file: web_sys::File) -> Result<String, StoreError> {
+    let promise = file.text();
+    wasm_bindgen_futures::JsFuture::from(promise)
+        .await
+        .ok()
+        .and_then(|v| v.as_string())
+        .ok_or_else(|| StoreError(format!("{} could not be read as text", file.name())))
+}

@@ -147,7 +147,7 @@ pub fn App() -> impl IntoView {
              local regulations; it does not replace them or the judgement of qualified staff. \
              Never release results of a rejected run."
         </p>
-        {move || problem.get().map(|p| view! { <p class="problem" role="alert">{p}</p> })}
+        {move || problem.get().map(|p| view! { <p class="problem" role="alert" data-testid="problem">{p}</p> })}
         <nav class="views" aria-label="Views">
             {View::ALL
                 .into_iter()
@@ -181,8 +181,7 @@ pub fn App() -> impl IntoView {
                 <MaterialList lab=lab />
             </ViewPanel>
             <ViewPanel view=View::Records active=active>
-                <EmptyState text="Records of calibrations, runs and corrections will be listed here. \
-                                  Export and import for the USB stick come with the records work." />
+                <RecordsPanel lab=lab set_lab=set_lab set_problem=set_problem />
             </ViewPanel>
             <ViewPanel view=View::Setup active=active>
                 <section class="card">
@@ -228,6 +227,105 @@ fn EmptyState(
     text: &'static str,
 ) -> impl IntoView {
     view! { <p class="empty">{text}</p> }
+}
+
+/// Export and import of the lab's records, for the USB stick between PCs.
+#[component]
+fn RecordsPanel(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+    /// Replaces the lab after an import.
+    set_lab: WriteSignal<Option<Lab>>,
+    /// Where problems are shown.
+    set_problem: WriteSignal<Option<String>>,
+) -> impl IntoView {
+    let (outcome, set_outcome) = signal::<Option<String>>(None);
+    let export = move |_| {
+        let Some(text) = lab.with(|l| {
+            l.as_ref()
+                .and_then(|l| serde_json::to_string_pretty(l).ok())
+        }) else {
+            set_problem.set(Some(
+                "nothing to export yet: set up the lab or load the demo".into(),
+            ));
+            return;
+        };
+        let name = format!("cuvette-records-{}.json", Local::now().format("%Y-%m-%d"));
+        match store::download(&name, "application/json", &text) {
+            Ok(()) => set_outcome.set(Some(format!("Exported {name}. Copy it to the USB stick."))),
+            Err(e) => set_problem.set(Some(e.0)),
+        }
+    };
+    let import = move |ev: leptos::ev::Event| {
+        let input: web_sys::HtmlInputElement = event_target(&ev);
+        let Some(file) = input.files().and_then(|f| f.get(0)) else {
+            return;
+        };
+        input.set_value("");
+        leptos::task::spawn_local(async move {
+            let name = file.name();
+            let text = match store::read_text(file).await {
+                Ok(t) => t,
+                Err(e) => return set_problem.set(Some(e.0)),
+            };
+            let incoming = match Lab::from_json(&text) {
+                Ok(l) => l,
+                Err(e) => {
+                    return set_problem.set(Some(format!("{name}: {e}. Nothing was imported.")))
+                }
+            };
+            let mut merged = lab.get_untracked().unwrap_or_else(|| {
+                let mut empty = Lab::empty(&incoming.lab_name);
+                empty.demo = incoming.demo;
+                empty
+            });
+            let count = merged.merge(&incoming);
+            if let Err(e) = store::save_lab(&merged) {
+                set_problem.set(Some(e.0));
+            } else {
+                set_problem.set(None);
+            }
+            set_lab.set(Some(merged));
+            set_outcome.set(Some(format!(
+                "Imported {name}: {} new records, {} updated, {} already here.",
+                count.added, count.updated, count.kept
+            )));
+        });
+    };
+    let summary = move || {
+        lab.with(|l| {
+            l.as_ref().map_or("No records yet.".to_string(), |l| {
+                format!(
+                    "{} tests, {} control levels, {} QC runs, {} materials.",
+                    l.tests.len(),
+                    l.control_levels.len(),
+                    l.control_runs.len(),
+                    l.materials.len()
+                )
+            })
+        })
+    };
+    view! {
+        <section class="card">
+            <h3>"Carry the records to another PC"</h3>
+            <p data-testid="records-summary">{summary}</p>
+            <p>
+                <button data-testid="export-json" on:click=export>"Export all records (JSON)"</button>
+            </p>
+            <p>
+                <label>
+                    "Import records from another PC (JSON): "
+                    <input type="file" accept=".json,application/json" data-testid="import-json"
+                        on:change=import />
+                </label>
+            </p>
+            <p class="muted">
+                "An import adds the records this PC does not have and takes the newer version \
+                 of a record changed on both; nothing here is deleted."
+            </p>
+            {move || outcome.get().map(|o| view! { <p class="outcome" data-testid="records-outcome">{o}</p> })}
+        </section>
+    }
 }
 
 const NO_LAB: &str = "No lab yet. Set up your tests, or load the demo lab from Set-up.";

@@ -2,7 +2,7 @@
 // it saves across a reload and a browser restart, and logs no errors.
 import { test } from "node:test";
 import assert from "node:assert/strict";
-import { copyFileSync, mkdtempSync } from "node:fs";
+import { copyFileSync, mkdtempSync, writeFileSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { openApp, newProfile, byTestId, singleFile } from "./helpers.mjs";
@@ -112,6 +112,47 @@ test("a copy of the single file elsewhere (a USB stick) works on its own", async
     await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "nav-charts").click();
     await byTestId(page, "lj-chart").first().waitFor();
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("records exported on one PC import on another, and a bad file loses nothing", async () => {
+  const dir = mkdtempSync(join(tmpdir(), "usb-"));
+  const saved = join(dir, "records.json");
+  let { context, page, problems } = await openApp(newProfile());
+  await byTestId(page, "nav-setup").click();
+  await byTestId(page, "load-demo").click();
+  await byTestId(page, "nav-records").click();
+  const summary = await byTestId(page, "records-summary").innerText();
+  const [download] = await Promise.all([
+    page.waitForEvent("download"),
+    byTestId(page, "export-json").click(),
+  ]);
+  assert.match(download.suggestedFilename(), /^cuvette-records-\d{4}-\d{2}-\d{2}\.json$/);
+  await download.saveAs(saved);
+  assert.deepEqual(problems, []);
+  await context.close();
+
+  // Another PC: a fresh profile.
+  ({ context, page, problems } = await openApp(newProfile()));
+  try {
+    await byTestId(page, "nav-records").click();
+    await byTestId(page, "import-json").setInputFiles(saved);
+    await byTestId(page, "records-outcome").waitFor();
+    assert.match(await byTestId(page, "records-outcome").innerText(), /Imported records\.json: \d+ new records, 0 updated/);
+    assert.equal(await byTestId(page, "records-summary").innerText(), summary);
+    // Importing the same file again adds nothing.
+    await byTestId(page, "import-json").setInputFiles(saved);
+    await page.waitForFunction(() => /0 new records/.test(document.querySelector('[data-testid="records-outcome"]').textContent));
+    // A file that is not a lab: a clear message, the records stay.
+    const junk = join(dir, "photo.json");
+    writeFileSync(junk, "this is not JSON");
+    await byTestId(page, "import-json").setInputFiles(junk);
+    await byTestId(page, "problem").waitFor();
+    assert.match(await byTestId(page, "problem").innerText(), /photo\.json: this file is not a Cuvette lab.*Nothing was imported/);
+    assert.equal(await byTestId(page, "records-summary").innerText(), summary);
     assert.deepEqual(problems, []);
   } finally {
     await context.close();
