@@ -9,7 +9,8 @@
 use chrono::{DateTime, Utc};
 use serde::{Deserialize, Serialize};
 
-use crate::engine::calibration::{ModelKind, Weighting};
+use crate::engine::acceptance::{AcceptanceLimits, Outcome};
+use crate::engine::calibration::{Curve, ModelKind, ReplicateUse, Weighting};
 use crate::engine::qc::{Rule, RuleSetting};
 
 /// The schema version written into every saved lab and export.
@@ -68,6 +69,44 @@ pub struct TestSetup {
     /// The QC rules the lab applies to this test, with their actions.
     #[serde(default = "default_qc_rules")]
     pub qc_rules: Vec<RuleSetting>,
+    /// Limits a new calibration is judged against.
+    #[serde(default)]
+    pub acceptance: AcceptanceLimits,
+    #[serde(default)]
+    pub replicates: ReplicateUse,
+}
+
+/// One calibrator's readings: assigned concentration and replicate absorbances.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CalibratorReading {
+    pub conc: f64,
+    pub absorbances: Vec<f64>,
+}
+
+/// A calibration as performed: the raw readings, the curve fitted to them and the
+/// verdict at the time. Only an accepted one (with or without remarks) is used for
+/// results.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CalibrationRecord {
+    pub meta: RecordMeta,
+    pub test_id: String,
+    pub performed_at: DateTime<Utc>,
+    pub model: ModelKind,
+    pub weighting: Weighting,
+    pub replicates: ReplicateUse,
+    /// Reagent blank absorbances.
+    pub blank: Vec<f64>,
+    pub calibrators: Vec<CalibratorReading>,
+    pub curve: Curve,
+    pub outcome: Outcome,
+    /// The verdict's reasons, as shown when it was saved.
+    pub findings: Vec<String>,
+}
+
+impl CalibrationRecord {
+    pub fn usable(&self) -> bool {
+        self.outcome != Outcome::Rejected
+    }
 }
 
 /// 1-2s warning; 1-3s, 2-2s, R-4s, 4-1s, 10-x rejection: the two-level multirule
@@ -152,7 +191,13 @@ macro_rules! record {
         })*
     };
 }
-record!(TestSetup, ControlLevel, ControlRun, MaterialRecord);
+record!(
+    TestSetup,
+    ControlLevel,
+    ControlRun,
+    MaterialRecord,
+    CalibrationRecord
+);
 
 /// What an import did, per kind of record.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -209,6 +254,8 @@ pub struct Lab {
     pub control_runs: Vec<ControlRun>,
     #[serde(default)]
     pub materials: Vec<MaterialRecord>,
+    #[serde(default)]
+    pub calibrations: Vec<CalibrationRecord>,
 }
 
 impl Lab {
@@ -222,6 +269,7 @@ impl Lab {
             control_levels: Vec::new(),
             control_runs: Vec::new(),
             materials: Vec::new(),
+            calibrations: Vec::new(),
         }
     }
 
@@ -258,6 +306,10 @@ impl Lab {
             &incoming.control_runs,
         ));
         total.add(merge_records(&mut self.materials, &incoming.materials));
+        total.add(merge_records(
+            &mut self.calibrations,
+            &incoming.calibrations,
+        ));
         total
     }
 
@@ -267,6 +319,25 @@ impl Lab {
             .iter()
             .filter(|l| l.test_id == test_id)
             .collect()
+    }
+
+    /// Calibrations of a test, oldest first.
+    pub fn calibrations_of(&self, test_id: &str) -> Vec<&CalibrationRecord> {
+        let mut c: Vec<&CalibrationRecord> = self
+            .calibrations
+            .iter()
+            .filter(|c| c.test_id == test_id)
+            .collect();
+        c.sort_by_key(|c| c.performed_at);
+        c
+    }
+
+    /// The calibration in use for a test: the latest accepted one.
+    pub fn current_calibration(&self, test_id: &str) -> Option<&CalibrationRecord> {
+        self.calibrations_of(test_id)
+            .into_iter()
+            .rev()
+            .find(|c| c.usable())
     }
 
     /// QC runs of a test, oldest first.

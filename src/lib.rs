@@ -7,6 +7,7 @@
 #[cfg(not(target_arch = "wasm32"))]
 pub mod calc;
 pub mod engine;
+pub mod entry;
 pub mod lab;
 pub mod store;
 pub mod ui;

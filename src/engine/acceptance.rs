@@ -97,6 +97,11 @@ pub fn sensitivity(curve: &Curve) -> (f64, &'static str) {
     }
 }
 
+/// Change from `before` to `now` in %; `None` when `before` is 0.
+pub fn change_pct(now: f64, before: f64) -> Option<f64> {
+    (before != 0.0).then(|| (now - before) / before * 100.0)
+}
+
 /// Judge a calibration. `previous` is the last accepted calibration's curve.
 pub fn judge(
     readings: &CalibrationReadings,
@@ -169,8 +174,7 @@ pub fn judge(
     match (previous, limits.max_change_pct) {
         (Some(prev), Some(check)) => {
             let (before, _) = sensitivity(prev);
-            if before != 0.0 {
-                let change = (now - before) / before * 100.0;
+            if let Some(change) = change_pct(now, before) {
                 if change.abs() > check.limit {
                     add(
                         check.on_fail,

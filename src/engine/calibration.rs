@@ -513,6 +513,25 @@ impl Fit {
     }
 }
 
+/// Calibrator points from raw readings: each replicate absorbance minus the mean
+/// reagent blank (no subtraction when no blank was read).
+pub fn blank_corrected(blank: &[f64], calibrators: &[(f64, Vec<f64>)]) -> Vec<CalPoint> {
+    let b = if blank.is_empty() {
+        0.0
+    } else {
+        blank.iter().sum::<f64>() / blank.len() as f64
+    };
+    calibrators
+        .iter()
+        .flat_map(|(conc, reps)| {
+            reps.iter().map(move |a| CalPoint {
+                conc: *conc,
+                signal: a - b,
+            })
+        })
+        .collect()
+}
+
 /// Average replicate readings at the same concentration (order of first appearance).
 pub fn average_replicates(points: &[CalPoint]) -> Vec<CalPoint> {
     let mut groups: Vec<(f64, f64, usize)> = Vec::new();

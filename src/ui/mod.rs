@@ -4,6 +4,7 @@
 //! show; they do no arithmetic of their own. Storage goes through [`crate::store`],
 //! drawing through [`chart`].
 
+mod calibration;
 mod chart;
 
 use chrono::{Local, Utc};
@@ -110,6 +111,13 @@ pub fn App() -> impl IntoView {
             Err(e) => set_problem.set(Some(e.0)),
         }
     };
+    let save = Callback::new(move |changed: Lab| {
+        match store::save_lab(&changed) {
+            Ok(()) => set_problem.set(None),
+            Err(e) => set_problem.set(Some(e.0)),
+        }
+        set_lab.set(Some(changed));
+    });
     let is_demo = move || lab.with(|l| l.as_ref().is_some_and(|l| l.demo));
     let lab_name = move || {
         lab.with(|l| {
@@ -169,7 +177,7 @@ pub fn App() -> impl IntoView {
                 <TodayBoard lab=lab />
             </ViewPanel>
             <ViewPanel view=View::Calibration active=active>
-                <CalibrationList lab=lab />
+                <calibration::CalibrationView lab=lab save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Runs active=active>
                 <RunList lab=lab />
@@ -369,38 +377,6 @@ fn state_word(s: StabilityState) -> &'static str {
         StabilityState::Ok => "usable",
         StabilityState::Expiring => "expiring soon",
         StabilityState::Expired => "expired: do not use",
-    }
-}
-
-#[component]
-fn CalibrationList(
-    /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
-) -> impl IntoView {
-    move || {
-        lab.with(|l| match l {
-            None => view! { <EmptyState text=NO_LAB /> }.into_any(),
-            Some(l) if l.tests.is_empty() => {
-                view! { <EmptyState text="No tests set up yet." /> }.into_any()
-            }
-            Some(l) => view! {
-                <table>
-                    <thead><tr><th>"Test"</th><th>"Unit"</th><th>"Calibration"</th><th>"nm"</th></tr></thead>
-                    <tbody>
-                        {l.tests.iter().map(|t| view! {
-                            <tr>
-                                <td>{format!("{} {}", t.code, t.name)}</td>
-                                <td>{t.unit.clone()}</td>
-                                <td>{t.model.code()}</td>
-                                <td>{t.wavelength_nm}</td>
-                            </tr>
-                        }).collect_view()}
-                    </tbody>
-                </table>
-                <p class="empty">"No calibrations recorded yet."</p>
-            }
-            .into_any(),
-        })
     }
 }
 

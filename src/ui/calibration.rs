@@ -1,0 +1,364 @@
+//! The calibration view: each test's calibration in use and its trend, and the form for
+//! a new calibration with a live fit and verdict from the engine.
+
+use chrono::{Local, Utc};
+use leptos::prelude::*;
+
+use crate::engine::acceptance::{self, CalibrationReadings, Outcome, Verdict};
+use crate::engine::calibration::{self, Fit, ModelKind, ReplicateUse, Weighting};
+use crate::engine::qcstats::summarize;
+use crate::entry;
+use crate::lab::{CalibrationRecord, CalibratorReading, Lab, RecordMeta, TestSetup};
+use crate::store;
+
+/// Everything the view shows for one test.
+#[component]
+pub fn CalibrationView(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+    /// Saves a changed lab.
+    save: Callback<Lab>,
+    /// The technician's initials.
+    technician: ReadSignal<String>,
+) -> impl IntoView {
+    move || {
+        lab.with(|l| match l {
+            None => view! { <p class="empty">{super::NO_LAB}</p> }.into_any(),
+            Some(l) if l.tests.is_empty() => {
+                view! { <p class="empty">"No tests set up yet."</p> }.into_any()
+            }
+            Some(l) => l
+                .tests
+                .iter()
+                .map(|t| {
+                    view! {
+                        <TestCalibration lab=l.clone() test=t.clone() save=save technician=technician />
+                    }
+                })
+                .collect_view()
+                .into_any(),
+        })
+    }
+}
+
+fn outcome_words(o: Outcome) -> &'static str {
+    match o {
+        Outcome::Accepted => "accepted",
+        Outcome::AcceptedWithRemarks => "accepted with remarks",
+        Outcome::Rejected => "rejected: do not use",
+    }
+}
+
+fn outcome_class(o: Outcome) -> &'static str {
+    match o {
+        Outcome::Accepted => "outcome-ok",
+        Outcome::AcceptedWithRemarks => "outcome-remark",
+        Outcome::Rejected => "outcome-rejected",
+    }
+}
+
+/// A test's calibration history (newest first) and the form for a new one.
+#[component]
+fn TestCalibration(
+    lab: Lab,
+    test: TestSetup,
+    save: Callback<Lab>,
+    technician: ReadSignal<String>,
+) -> impl IntoView {
+    let history: Vec<CalibrationRecord> = lab
+        .calibrations_of(&test.meta.id)
+        .into_iter()
+        .cloned()
+        .collect();
+    let rows = history
+        .iter()
+        .enumerate()
+        .rev()
+        .map(|(i, c)| {
+            let blank = summarize(&c.blank).map_or("–".into(), |s| format!("{:.4}", s.mean));
+            let top = c
+                .calibrators
+                .iter()
+                .max_by(|a, b| a.conc.total_cmp(&b.conc))
+                .and_then(|cal| summarize(&cal.absorbances))
+                .map_or("–".into(), |s| format!("{:.4}", s.mean));
+            let (value, what) = acceptance::sensitivity(&c.curve);
+            let change = history[..i]
+                .iter()
+                .rev()
+                .find(|p| p.usable())
+                .and_then(|p| acceptance::change_pct(value, acceptance::sensitivity(&p.curve).0))
+                .map_or("–".into(), |v| format!("{v:+.1} %"));
+            view! {
+                <tr data-testid="calibration-row">
+                    <td>{c.performed_at.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()}</td>
+                    <td>{c.meta.by.clone()}</td>
+                    <td>{blank}</td>
+                    <td>{top}</td>
+                    <td>{format!("{what} {value:.4}")}</td>
+                    <td>{change}</td>
+                    <td class=outcome_class(c.outcome)>{outcome_words(c.outcome)}</td>
+                </tr>
+            }
+        })
+        .collect_view();
+    let empty = history.is_empty();
+    view! {
+        <section class="card wide" data-testid=format!("calibration-{}", test.code)>
+            <h3>{format!("{} {} ({} nm, {})", test.code, test.name, test.wavelength_nm, test.unit)}</h3>
+            <Show when=move || empty>
+                <p class="empty">"No calibrations recorded yet."</p>
+            </Show>
+            <Show when=move || !empty>
+                <table>
+                    <thead>
+                        <tr>
+                            <th>"When"</th><th>"By"</th><th>"Reagent blank"</th>
+                            <th>"Top calibrator"</th><th>"Sensitivity"</th><th>"Change"</th><th>"Verdict"</th>
+                        </tr>
+                    </thead>
+                    <tbody>{rows.clone()}</tbody>
+                </table>
+            </Show>
+            <NewCalibration lab=lab.clone() test=test.clone() save=save technician=technician />
+        </section>
+    }
+}
+
+/// The result of the form so far.
+#[derive(Clone, PartialEq)]
+struct Preview {
+    readings: CalibrationReadings,
+    fit: Result<Fit, String>,
+    verdict: Option<Verdict>,
+}
+
+fn preview(
+    lab: &Lab,
+    test: &TestSetup,
+    model: ModelKind,
+    weighting: Weighting,
+    replicates: ReplicateUse,
+    blank_text: &str,
+    cal_text: &str,
+) -> Result<Preview, String> {
+    let blank = entry::numbers(blank_text, "reagent blank")?;
+    let calibrators = entry::calibrator_lines(cal_text)?;
+    if calibrators.is_empty() {
+        return Err(
+            "enter the calibrator readings: one line per calibrator, \"conc: abs abs\"".into(),
+        );
+    }
+    let points = calibration::blank_corrected(&blank, &calibrators);
+    let fit = calibration::fit(model, weighting, replicates, &points);
+    let readings = CalibrationReadings { blank, calibrators };
+    let previous = lab.current_calibration(&test.meta.id).map(|c| c.curve);
+    let verdict = Some(acceptance::judge(
+        &readings,
+        fit.as_ref(),
+        previous.as_ref(),
+        &test.acceptance,
+    ));
+    Ok(Preview {
+        readings,
+        fit: fit.map_err(|e| e.message),
+        verdict,
+    })
+}
+
+#[component]
+fn NewCalibration(
+    lab: Lab,
+    test: TestSetup,
+    save: Callback<Lab>,
+    technician: ReadSignal<String>,
+) -> impl IntoView {
+    let (model, set_model) = signal(test.model);
+    let (weighting, set_weighting) = signal(test.weighting);
+    let (blank_text, set_blank_text) = signal(String::new());
+    let (cal_text, set_cal_text) = signal(String::new());
+    let (message, set_message) = signal::<Option<String>>(None);
+    let replicates = test.replicates;
+    let lab_for_preview = lab.clone();
+    let test_for_preview = test.clone();
+    let result = Memo::new(move |_| {
+        let (b, c) = (blank_text.get(), cal_text.get());
+        if b.trim().is_empty() && c.trim().is_empty() {
+            return None;
+        }
+        Some(preview(
+            &lab_for_preview,
+            &test_for_preview,
+            model.get(),
+            weighting.get(),
+            replicates,
+            &b,
+            &c,
+        ))
+    });
+    let test_id = test.meta.id.clone();
+    let on_save = move |_| {
+        let initials = technician.get_untracked();
+        if initials.trim().is_empty() {
+            set_message.set(Some(
+                "enter your initials (top right) before saving: every record says who did it"
+                    .into(),
+            ));
+            return;
+        }
+        let Some(Ok(p)) = result.get_untracked() else {
+            set_message.set(Some(
+                "nothing to save: enter readings that can be fitted".into(),
+            ));
+            return;
+        };
+        let (Ok(fit), Some(verdict)) = (p.fit, p.verdict) else {
+            set_message.set(Some(
+                "the curve could not be fitted, so there is nothing to save".into(),
+            ));
+            return;
+        };
+        let now = Utc::now();
+        let record = CalibrationRecord {
+            meta: RecordMeta::new(store::random_bytes(), now, &initials),
+            test_id: test_id.clone(),
+            performed_at: now,
+            model: model.get_untracked(),
+            weighting: weighting.get_untracked(),
+            replicates,
+            blank: p.readings.blank,
+            calibrators: p
+                .readings
+                .calibrators
+                .into_iter()
+                .map(|(conc, absorbances)| CalibratorReading { conc, absorbances })
+                .collect(),
+            curve: fit.curve,
+            outcome: verdict.outcome,
+            findings: verdict.findings.iter().map(|f| f.message.clone()).collect(),
+        };
+        let mut changed = lab.clone();
+        changed.calibrations.push(record);
+        save.run(changed);
+        set_message.set(Some(format!("saved: {}", outcome_words(verdict.outcome))));
+    };
+    let code = test.code.clone();
+    let shown = move || {
+        result.with(|r| match r {
+            None => {
+                view! { <p class="muted">"Enter the reagent blank and calibrator absorbances."</p> }
+                    .into_any()
+            }
+            Some(Err(e)) => {
+                view! { <p class="problem" data-testid="calibration-input-problem">{e.clone()}</p> }
+                    .into_any()
+            }
+            Some(Ok(p)) => preview_view(p).into_any(),
+        })
+    };
+    view! {
+        <details class="new-calibration">
+            <summary data-testid=format!("new-calibration-{code}")>"New calibration"</summary>
+            <div class="form">
+                <label>
+                    "Model "
+                    <select on:change=move |ev| {
+                        if let Some(m) = ModelKind::from_code(&event_target_value(&ev)) {
+                            set_model.set(m);
+                        }
+                    }>
+                        {ModelKind::ALL
+                            .into_iter()
+                            .map(|m| view! { <option value=m.code() selected=move || model.get() == m>{m.code()}</option> })
+                            .collect_view()}
+                    </select>
+                </label>
+                <label>
+                    " Weighting "
+                    <select on:change=move |ev| {
+                        if let Some(w) = Weighting::from_code(&event_target_value(&ev)) {
+                            set_weighting.set(w);
+                        }
+                    }>
+                        {[Weighting::None, Weighting::InvX, Weighting::InvX2, Weighting::InvY, Weighting::InvY2]
+                            .into_iter()
+                            .map(|w| view! { <option value=w.code() selected=move || weighting.get() == w>{w.code()}</option> })
+                            .collect_view()}
+                    </select>
+                </label>
+                <label class="block">
+                    "Reagent blank absorbances"
+                    <input data-testid="calibration-blank" placeholder="0.045 0.046"
+                        on:input=move |ev| set_blank_text.set(event_target_value(&ev)) />
+                </label>
+                <label class="block">
+                    "Calibrators, one per line: concentration, then absorbances"
+                    <textarea data-testid="calibration-readings" rows="4" placeholder="100: 0.465 0.462"
+                        on:input=move |ev| set_cal_text.set(event_target_value(&ev))></textarea>
+                </label>
+                {shown}
+                <button data-testid="save-calibration" on:click=on_save>"Save calibration"</button>
+                {move || message.get().map(|m| view! { <p class="outcome" data-testid="calibration-message">{m}</p> })}
+            </div>
+        </details>
+    }
+}
+
+fn preview_view(p: &Preview) -> impl IntoView {
+    let fit_part = match &p.fit {
+        Err(e) => {
+            view! { <p class="problem">{format!("The curve cannot be fitted: {e}")}</p> }.into_any()
+        }
+        Ok(f) => {
+            let params: Vec<String> = f
+                .model
+                .param_names()
+                .iter()
+                .zip(f.curve.param_values())
+                .zip(&f.std_errors)
+                .map(|((n, v), se)| match se {
+                    Some(se) => format!("{n} = {v:.6} (SE {se:.2e})"),
+                    None => format!("{n} = {v:.6}"),
+                })
+                .collect();
+            let r2 = f
+                .r_squared
+                .map_or(String::new(), |r| format!(", R² {r:.5}"));
+            let rows = f
+                .points
+                .iter()
+                .map(|pt| {
+                    view! {
+                        <tr>
+                            <td>{pt.conc}</td>
+                            <td>{format!("{:.4}", pt.signal)}</td>
+                            <td>{pt.back_calculated.map_or("–".into(), |b| format!("{b:.3}"))}</td>
+                            <td>{pt.recovery_pct.map_or("–".into(), |r| format!("{r:.1} %"))}</td>
+                        </tr>
+                    }
+                })
+                .collect_view();
+            view! {
+                <p data-testid="calibration-params">{format!("{}{r2}", params.join(", "))}</p>
+                <table>
+                    <thead><tr><th>"Conc"</th><th>"Net signal"</th><th>"Back-calculated"</th><th>"Recovery"</th></tr></thead>
+                    <tbody>{rows}</tbody>
+                </table>
+            }
+            .into_any()
+        }
+    };
+    let verdict = p.verdict.as_ref().map(|v| {
+        let outcome = v.outcome;
+        view! {
+            <p class=outcome_class(outcome)>
+                <strong data-testid="calibration-verdict">{outcome_words(outcome)}</strong>
+            </p>
+            <ul>{v.findings.iter().map(|f| view! { <li>{f.message.clone()}</li> }).collect_view()}</ul>
+        }
+    });
+    view! {
+        {fit_part}
+        {verdict}
+    }
+}
