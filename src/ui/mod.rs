@@ -6,12 +6,12 @@
 
 mod calibration;
 mod chart;
+mod runs;
 
 use chrono::{Local, Utc};
 use leptos::prelude::*;
 
 use crate::engine::charts::LeveyJennings;
-use crate::engine::qc::{self, Decision};
 use crate::engine::stability::{self, StabilityState, WarningWindow};
 use crate::lab::Lab;
 use crate::store;
@@ -180,7 +180,7 @@ pub fn App() -> impl IntoView {
                 <calibration::CalibrationView lab=lab save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Runs active=active>
-                <RunList lab=lab />
+                <runs::RunsView lab=lab save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Charts active=active>
                 <ControlCharts lab=lab />
@@ -377,107 +377,6 @@ fn state_word(s: StabilityState) -> &'static str {
         StabilityState::Ok => "usable",
         StabilityState::Expiring => "expiring soon",
         StabilityState::Expired => "expired: do not use",
-    }
-}
-
-#[component]
-fn RunList(
-    /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
-) -> impl IntoView {
-    move || {
-        lab.with(|l| match l {
-            None => view! { <EmptyState text=NO_LAB /> }.into_any(),
-            Some(l) if l.control_runs.is_empty() => {
-                view! { <EmptyState text="No QC runs recorded yet." /> }.into_any()
-            }
-            Some(l) => l
-                .tests
-                .iter()
-                .map(|t| view! { <TestRuns lab=l.clone() test_id=t.meta.id.clone() /> })
-                .collect_view()
-                .into_any(),
-        })
-    }
-}
-
-/// One test's QC runs, newest first, each with the engine's decision.
-#[component]
-fn TestRuns(
-    /// The lab.
-    lab: Lab,
-    /// Which test.
-    test_id: String,
-) -> impl IntoView {
-    let Some(test) = lab.tests.iter().find(|t| t.meta.id == test_id) else {
-        return ().into_any();
-    };
-    let history = lab.control_history(&test_id);
-    let names: Vec<String> = history.levels.iter().map(|l| l.name.clone()).collect();
-    let verdicts = qc::evaluate(&history.targets, &history.values, &test.qc_rules);
-    let run_dates: Vec<String> = history
-        .runs
-        .iter()
-        .map(|r| r.run_at.with_timezone(&Local).format("%d %b").to_string())
-        .collect();
-    let rows = match verdicts {
-        Err(e) => view! { <tr><td colspan="4">{format!("QC cannot be evaluated: {e}")}</td></tr> }
-            .into_any(),
-        Ok(verdicts) => history
-            .runs
-            .iter()
-            .zip(&history.values)
-            .zip(verdicts)
-            .rev()
-            .map(|((run, values), verdict)| {
-                let shown: Vec<String> = values
-                    .iter()
-                    .zip(&history.targets)
-                    .map(|(v, t)| match v {
-                        Some(v) => format!("{v} ({:+.1} SD)", qc::z_score(*v, *t)),
-                        None => "not run".into(),
-                    })
-                    .collect();
-                let why: Vec<String> = verdict
-                    .violations
-                    .iter()
-                    .map(|v| v.explain(&names, |r| run_dates.get(r).cloned().unwrap_or_default()))
-                    .collect();
-                let decision = verdict.decision;
-                view! {
-                    <tr class=format!("decision-{}", decision.code()) data-testid="qc-run">
-                        <td>{run.run_at.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()}</td>
-                        <td>{run.meta.by.clone()}</td>
-                        <td>{shown.join(" · ")}</td>
-                        <td>
-                            <strong data-testid="qc-decision">{decision_words(decision)}</strong>
-                            <ul>{why.into_iter().map(|w| view! { <li>{w}</li> }).collect_view()}</ul>
-                        </td>
-                    </tr>
-                }
-            })
-            .collect_view()
-            .into_any(),
-    };
-    let rules: Vec<&str> = test.qc_rules.iter().map(|r| r.rule.code()).collect();
-    view! {
-        <section class="card wide">
-            <h3>{format!("{} {}", test.code, test.name)}</h3>
-            <p class="muted">{format!("Levels: {}. Rules: {}.", names.join(", "), rules.join(", "))}</p>
-            <table>
-                <thead><tr><th>"Run"</th><th>"By"</th><th>"Control results"</th><th>"Decision"</th></tr></thead>
-                <tbody>{rows}</tbody>
-            </table>
-        </section>
-    }
-    .into_any()
-}
-
-fn decision_words(d: Decision) -> &'static str {
-    match d {
-        Decision::Accept => "accept",
-        Decision::Warning => "warning: inspect before releasing",
-        Decision::Reject => "reject: hold patient results",
     }
 }
 
