@@ -313,6 +313,47 @@ impl Lab {
         total
     }
 
+    /// Move every date in the lab by whole days. The demo lab is moved so that its last
+    /// QC run was this morning, and its materials count down from today.
+    pub fn shift_days(&mut self, days: i64) {
+        let d = chrono::Duration::days(days);
+        let meta = |m: &mut RecordMeta| {
+            m.created_at += d;
+            m.changed_at += d;
+        };
+        self.tests.iter_mut().for_each(|t| meta(&mut t.meta));
+        self.control_levels
+            .iter_mut()
+            .for_each(|l| meta(&mut l.meta));
+        for r in &mut self.control_runs {
+            meta(&mut r.meta);
+            r.run_at += d;
+        }
+        for c in &mut self.calibrations {
+            meta(&mut c.meta);
+            c.performed_at += d;
+        }
+        for m in &mut self.materials {
+            meta(&mut m.meta);
+            m.stability.shift_days(days);
+        }
+    }
+
+    /// Shift the lab so its last activity falls on `today` (local date in `tz`).
+    pub fn bring_to<Tz: chrono::TimeZone>(&mut self, today: chrono::NaiveDate, tz: &Tz) {
+        if let Some(last) = self.last_activity() {
+            let days = (today - last.with_timezone(tz).date_naive()).num_days();
+            self.shift_days(days);
+        }
+    }
+
+    /// The latest QC run or calibration time, if any.
+    pub fn last_activity(&self) -> Option<DateTime<Utc>> {
+        let runs = self.control_runs.iter().map(|r| r.run_at);
+        let cals = self.calibrations.iter().map(|c| c.performed_at);
+        runs.chain(cals).max()
+    }
+
     /// Control levels of a test, in the order they were set up.
     pub fn levels_of(&self, test_id: &str) -> Vec<&ControlLevel> {
         self.control_levels
@@ -435,6 +476,32 @@ mod tests {
         // Merging again changes nothing.
         let again = here.merge(&there);
         assert_eq!((again.added, again.updated), (0, 0));
+    }
+
+    #[test]
+    fn shifting_moves_every_date_and_keeps_ids() {
+        let demo = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
+        let mut moved = demo.clone();
+        moved.shift_days(10);
+        let before = demo.last_activity().unwrap();
+        assert_eq!(
+            moved.last_activity().unwrap() - before,
+            chrono::Duration::days(10)
+        );
+        assert_eq!(moved.control_runs[0].meta.id, demo.control_runs[0].meta.id);
+        assert_eq!(
+            moved.materials[0].stability.expiry,
+            demo.materials[0].stability.expiry.shifted(10)
+        );
+        // A month label moves with its last day: 2027-05 + 10 days → 2027-06.
+        assert_eq!(
+            "2027-05"
+                .parse::<crate::engine::stability::ExpiryDate>()
+                .unwrap()
+                .shifted(10)
+                .to_string(),
+            "2027-06"
+        );
     }
 
     #[test]

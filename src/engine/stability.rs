@@ -86,6 +86,24 @@ impl ExpiryDate {
         }
     }
 
+    /// The same kind of label `days` later (a month label moves with its last day).
+    pub fn shifted(self, days: i64) -> ExpiryDate {
+        let d = Duration::days(days);
+        match self {
+            ExpiryDate::Day(day) => ExpiryDate::Day(day + d),
+            ExpiryDate::Month { year, month } => match last_day_of_month(year, month) {
+                Some(last) => {
+                    let moved = last + d;
+                    ExpiryDate::Month {
+                        year: moved.year(),
+                        month: moved.month(),
+                    }
+                }
+                None => self,
+            },
+        }
+    }
+
     /// The instant the material expires: the start of the next local day.
     pub fn expires_at<Tz: TimeZone>(self, tz: &Tz) -> Option<DateTime<Utc>> {
         let day = self.first_day_after()?;
@@ -156,6 +174,26 @@ pub struct Material {
     pub frozen: Option<FrozenAliquot>,
     #[serde(default)]
     pub analytes: Vec<AnalyteStability>,
+}
+
+impl Material {
+    /// Every date and time moved by `days` (for the demo lab, kept current).
+    pub fn shift_days(&mut self, days: i64) {
+        let d = Duration::days(days);
+        self.expiry = self.expiry.shifted(days);
+        for t in [&mut self.opened_at, &mut self.on_board_since]
+            .into_iter()
+            .flatten()
+        {
+            *t += d;
+        }
+        if let Some(f) = self.frozen.as_mut() {
+            f.frozen_at += d;
+            if let Some(t) = f.thawed_at.as_mut() {
+                *t += d;
+            }
+        }
+    }
 }
 
 /// Which limit sets the usable-until time.

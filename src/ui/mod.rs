@@ -95,7 +95,9 @@ pub fn App() -> impl IntoView {
         }
     };
     let load_demo = move |_| match Lab::from_json(DEMO_LAB) {
-        Ok(demo) => {
+        Ok(mut demo) => {
+            // Keep the invented history current: its last run was this morning.
+            demo.bring_to(Local::now().date_naive(), &Local);
             if let Err(e) = store::save_lab(&demo) {
                 set_problem.set(Some(e.0));
             }
@@ -348,27 +350,111 @@ fn TodayBoard(
             None => view! { <EmptyState text=NO_LAB /> }.into_any(),
             Some(l) => {
                 let now = Utc::now();
-                let attention = l
+                let today = now.with_timezone(&Local).date_naive();
+                let tests = l.tests.iter().map(|t| today_row(l, t, today)).collect_view();
+                let attention: Vec<(String, String)> = l
                     .materials
                     .iter()
                     .filter_map(|m| {
-                        stability::evaluate(&m.stability, now, &Local, WarningWindow::default())
-                            .ok()
-                            .filter(|r| r.material.state != StabilityState::Ok)
-                            .map(|r| format!("{}: {}", m.name, state_word(r.material.state)))
+                        let r = stability::evaluate(&m.stability, now, &Local, WarningWindow::default()).ok()?;
+                        let mut lines = vec![(&r.material, None)];
+                        lines.extend(r.analytes.iter().map(|(a, u)| (u, Some(a.clone()))));
+                        let worst = lines.into_iter().filter(|(u, _)| u.state != StabilityState::Ok).min_by_key(|(u, _)| u.until)?;
+                        let (u, analyte) = worst;
+                        let what = match analyte {
+                            Some(a) => format!("{} ({a})", m.name),
+                            None => m.name.clone(),
+                        };
+                        Some((
+                            what,
+                            format!(
+                                "{} — {} {}",
+                                state_word(u.state),
+                                u.governed_by.describe(),
+                                u.until.with_timezone(&Local).format("%Y-%m-%d %H:%M")
+                            ),
+                        ))
                     })
-                    .collect::<Vec<_>>();
+                    .collect();
+                let no_attention = attention.is_empty();
                 view! {
-                    <ul class="board">
-                        <li>{format!("{} tests set up", l.tests.len())}</li>
-                        <li>{format!("{} QC runs recorded", l.control_runs.len())}</li>
-                        <li>{format!("{} materials need attention", attention.len())}</li>
-                    </ul>
-                    <ul>{attention.into_iter().map(|a| view! { <li>{a}</li> }).collect_view()}</ul>
+                    <section class="card wide">
+                        <h3>"Tests"</h3>
+                        <table data-testid="today-tests">
+                            <thead><tr><th>"Test"</th><th>"Calibration in use"</th><th>"Latest QC run"</th><th>"Before patient samples"</th></tr></thead>
+                            <tbody>{tests}</tbody>
+                        </table>
+                    </section>
+                    <section class="card wide">
+                        <h3>"Materials that need attention"</h3>
+                        <Show when=move || no_attention>
+                            <p class="empty">"Every material in use is within its stability."</p>
+                        </Show>
+                        <ul data-testid="today-materials">
+                            {attention.into_iter().map(|(what, why)| view! { <li><strong>{what}</strong>": "{why}</li> }).collect_view()}
+                        </ul>
+                    </section>
                 }
                 .into_any()
             }
         })
+    }
+}
+
+/// One test on today's board.
+fn today_row(l: &Lab, t: &crate::lab::TestSetup, today: chrono::NaiveDate) -> impl IntoView {
+    let cal = l
+        .current_calibration(&t.meta.id)
+        .map_or("not calibrated".to_string(), |c| {
+            c.performed_at
+                .with_timezone(&Local)
+                .format("%Y-%m-%d")
+                .to_string()
+        });
+    let h = l.control_history(&t.meta.id);
+    let verdicts =
+        crate::engine::qc::evaluate(&h.targets, &h.values, &t.qc_rules).unwrap_or_default();
+    let last = h.runs.last().zip(verdicts.last());
+    let (latest, advice, class) = match last {
+        None => (
+            "none".to_string(),
+            "run the controls first".to_string(),
+            "decision-none",
+        ),
+        Some((run, verdict)) => {
+            let when = run.run_at.with_timezone(&Local);
+            let latest = format!(
+                "{} {}",
+                when.format("%Y-%m-%d %H:%M"),
+                verdict.decision.code()
+            );
+            if when.date_naive() != today {
+                (
+                    latest,
+                    "no QC run today: run the controls first".to_string(),
+                    "decision-none",
+                )
+            } else {
+                let class = match verdict.decision {
+                    crate::engine::qc::Decision::Accept => "decision-accept",
+                    crate::engine::qc::Decision::Warning => "decision-warning",
+                    crate::engine::qc::Decision::Reject => "decision-reject",
+                };
+                (
+                    latest,
+                    runs::decision_words(verdict.decision).to_string(),
+                    class,
+                )
+            }
+        }
+    };
+    view! {
+        <tr class=class data-testid="today-test">
+            <td>{format!("{} {}", t.code, t.name)}</td>
+            <td>{cal}</td>
+            <td>{latest}</td>
+            <td>{advice}</td>
+        </tr>
     }
 }
 

@@ -158,3 +158,22 @@ test("records exported on one PC import on another, and a bad file loses nothing
     await context.close();
   }
 });
+
+test("today's board: each test's calibration and QC state, and materials to act on", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "nav-today").click();
+    const rows = byTestId(page, "today-test");
+    assert.equal(await rows.count(), 3);
+    // The demo's glucose history ends in a shift that the multirule procedure rejects,
+    // and the demo is moved so that this run was this morning.
+    assert.match(await rows.first().innerText(), /GLU.*reject: hold patient results/s);
+    const materials = await byTestId(page, "today-materials").innerText();
+    assert.match(materials, /frozen aliquot/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
