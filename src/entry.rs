@@ -98,3 +98,195 @@ mod tests {
             .contains("line 2"));
     }
 }
+
+/// What the set-up form for a new test holds, as typed.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct TestForm {
+    pub code: String,
+    pub name: String,
+    pub unit: String,
+    pub mode: String,
+    pub model: String,
+    pub wavelength_nm: String,
+    pub linearity_limit: String,
+}
+
+fn one_number(text: &str, what: &str) -> Result<Option<f64>, String> {
+    let v = numbers(text, what)?;
+    match v.as_slice() {
+        [] => Ok(None),
+        [x] => Ok(Some(*x)),
+        _ => Err(format!("{what}: one number only")),
+    }
+}
+
+impl TestForm {
+    /// A new test from the form, or what to correct. Codes are unique in a lab.
+    pub fn into_test(
+        self,
+        lab: &crate::lab::Lab,
+        meta: crate::lab::RecordMeta,
+    ) -> Result<crate::lab::TestSetup, String> {
+        use crate::engine::calibration::ModelKind;
+        use crate::lab::ReadingMode;
+        let code = self.code.trim().to_uppercase();
+        if code.is_empty() || code.len() > 8 {
+            return Err("code: give a short code of 1 to 8 characters, e.g. GLU".into());
+        }
+        if lab.tests.iter().any(|t| t.code == code) {
+            return Err(format!(
+                "code: {code} is already set up; choose another code"
+            ));
+        }
+        let name = self.name.trim().to_string();
+        if name.is_empty() {
+            return Err("name: give the test's name, e.g. Glucose (GOD-PAP)".into());
+        }
+        let unit = self.unit.trim().to_string();
+        if unit.is_empty() {
+            return Err("unit: give the result unit, e.g. mg/dL or U/L".into());
+        }
+        let mode = match self.mode.as_str() {
+            "end-point" => ReadingMode::EndPoint,
+            "fixed-time" => ReadingMode::FixedTime,
+            "kinetic" => ReadingMode::Kinetic,
+            other => {
+                return Err(format!(
+                    "reading: {other:?}; choose end-point, fixed-time or kinetic"
+                ))
+            }
+        };
+        let model = ModelKind::from_code(&self.model)
+            .ok_or_else(|| format!("calibration: {:?} is not a model", self.model))?;
+        let wavelength_nm = one_number(&self.wavelength_nm, "wavelength")?
+            .filter(|w| (300.0..=1000.0).contains(w))
+            .ok_or("wavelength: give the filter or wavelength in nm, between 300 and 1000")?;
+        let linearity_limit = one_number(&self.linearity_limit, "linearity limit")?;
+        if linearity_limit.is_some_and(|l| l <= 0.0) {
+            return Err("linearity limit: must be above 0, or left empty".into());
+        }
+        Ok(crate::lab::TestSetup {
+            meta,
+            code,
+            name,
+            unit,
+            mode,
+            model,
+            weighting: Default::default(),
+            wavelength_nm,
+            linearity_limit,
+            qc_rules: crate::lab::default_qc_rules(),
+            acceptance: Default::default(),
+            replicates: Default::default(),
+        })
+    }
+}
+
+/// A new control level of a test, as typed.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct LevelForm {
+    pub name: String,
+    pub lot: String,
+    pub mean: String,
+    pub sd: String,
+}
+
+impl LevelForm {
+    pub fn into_level(
+        self,
+        test_id: &str,
+        meta: crate::lab::RecordMeta,
+    ) -> Result<crate::lab::ControlLevel, String> {
+        let name = self.name.trim().to_string();
+        if name.is_empty() {
+            return Err("level: give its name, e.g. Normal or Level 1".into());
+        }
+        let mean = one_number(&self.mean, "mean")?
+            .ok_or("mean: give the target mean (from the insert until the lab has its own)")?;
+        let sd = one_number(&self.sd, "SD")?
+            .filter(|s| *s > 0.0)
+            .ok_or("SD: give the target SD, a number above 0")?;
+        Ok(crate::lab::ControlLevel {
+            meta,
+            test_id: test_id.to_string(),
+            name,
+            lot: self.lot.trim().to_string(),
+            mean,
+            sd,
+        })
+    }
+}
+
+#[cfg(test)]
+mod form_tests {
+    use super::*;
+    use crate::lab::{Lab, RecordMeta};
+
+    fn meta() -> RecordMeta {
+        RecordMeta::new([1; 16], chrono::DateTime::UNIX_EPOCH, "ab")
+    }
+
+    fn form() -> TestForm {
+        TestForm {
+            code: "glu".into(),
+            name: "Glucose".into(),
+            unit: "mg/dL".into(),
+            mode: "end-point".into(),
+            model: "factor".into(),
+            wavelength_nm: "505".into(),
+            linearity_limit: "400".into(),
+        }
+    }
+
+    #[test]
+    fn a_test_form_becomes_a_test_or_says_what_to_fix() {
+        let mut lab = Lab::empty("x");
+        let t = form().into_test(&lab, meta()).unwrap();
+        assert_eq!(
+            (t.code.as_str(), t.wavelength_nm, t.linearity_limit),
+            ("GLU", 505.0, Some(400.0))
+        );
+        lab.tests.push(t);
+        assert!(form()
+            .into_test(&lab, meta())
+            .unwrap_err()
+            .contains("already set up"));
+        let bad = TestForm {
+            code: "ALT".into(),
+            wavelength_nm: "34O".into(),
+            ..form()
+        };
+        assert!(bad
+            .into_test(&lab, meta())
+            .unwrap_err()
+            .starts_with("wavelength"));
+        let bad = TestForm {
+            code: "ALT".into(),
+            wavelength_nm: "3400".into(),
+            ..form()
+        };
+        assert!(bad
+            .into_test(&lab, meta())
+            .unwrap_err()
+            .contains("between 300 and 1000"));
+    }
+
+    #[test]
+    fn a_level_needs_a_positive_sd() {
+        let f = LevelForm {
+            name: "Normal".into(),
+            lot: "L1".into(),
+            mean: "95".into(),
+            sd: "0".into(),
+        };
+        assert!(f.into_level("t", meta()).unwrap_err().starts_with("SD"));
+        let f = LevelForm {
+            name: "Normal".into(),
+            lot: "L1".into(),
+            mean: "95,5".into(),
+            sd: "2,8".into(),
+        };
+        let l = f.into_level("t", meta()).unwrap();
+        assert_eq!((l.mean, l.sd), (95.5, 2.8));
+    }
+}

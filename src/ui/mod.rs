@@ -7,6 +7,7 @@
 mod calibration;
 mod chart;
 mod runs;
+mod setup;
 
 use chrono::{Local, Utc};
 use leptos::prelude::*;
@@ -94,18 +95,18 @@ pub fn App() -> impl IntoView {
             set_problem.set(Some(e.0));
         }
     };
-    let load_demo = move |_| match Lab::from_json(DEMO_LAB) {
+    let load_demo = Callback::new(move |()| match Lab::from_json(DEMO_LAB) {
         Ok(mut demo) => {
             // Keep the invented history current: its last run was this morning.
             demo.bring_to(Local::now().date_naive(), &Local);
-            if let Err(e) = store::save_lab(&demo) {
-                set_problem.set(Some(e.0));
+            match store::save_lab(&demo) {
+                Ok(()) => set_problem.set(None),
+                Err(e) => set_problem.set(Some(e.0)),
             }
             set_lab.set(Some(demo));
-            set_problem.set(None);
         }
         Err(e) => set_problem.set(Some(format!("the demo lab is damaged: {e}"))),
-    };
+    });
     let on_initials = move |ev: leptos::ev::Event| {
         let v = event_target_value(&ev).trim().to_uppercase();
         match store::set_technician(&v) {
@@ -194,16 +195,7 @@ pub fn App() -> impl IntoView {
                 <RecordsPanel lab=lab set_lab=set_lab set_problem=set_problem />
             </ViewPanel>
             <ViewPanel view=View::Setup active=active>
-                <section class="card">
-                    <h3>"Demo lab"</h3>
-                    <p>
-                        "Load an invented district-hospital lab with three tests, QC history and \
-                         materials, to try every view. It replaces the lab saved in this browser."
-                    </p>
-                    <button data-testid="load-demo" on:click=load_demo>
-                        "Load demo lab"
-                    </button>
-                </section>
+                <setup::SetupView lab=lab save=save technician=technician load_demo=load_demo />
             </ViewPanel>
         </main>
     }
