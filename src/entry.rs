@@ -86,6 +86,19 @@ mod tests {
     }
 
     #[test]
+    fn sample_lines_keep_their_ids() {
+        let s = sample_lines("S-101 0.412\nS-102 0,233 0,251\n").unwrap();
+        assert_eq!(
+            s,
+            vec![
+                ("S-101".into(), vec![0.412]),
+                ("S-102".into(), vec![0.233, 0.251])
+            ]
+        );
+        assert!(sample_lines("S-103").unwrap_err().contains("S-103"));
+    }
+
+    #[test]
     fn calibrator_lines_and_their_errors() {
         let c = calibrator_lines("0: 0.041 0.043\n\n100: 0,412 0,415\n").unwrap();
         assert_eq!(
@@ -97,6 +110,27 @@ mod tests {
             .unwrap_err()
             .contains("line 2"));
     }
+}
+
+/// Sample lines: "sample-id reading reading …", one sample per line.
+pub fn sample_lines(text: &str) -> Result<Vec<(String, Vec<f64>)>, String> {
+    let mut out = Vec::new();
+    for (i, line) in text.lines().enumerate() {
+        let line = line.trim();
+        if line.is_empty() {
+            continue;
+        }
+        let (id, rest) = line.split_once(char::is_whitespace).unwrap_or((line, ""));
+        let what = format!("sample line {} ({id})", i + 1);
+        let v = numbers(rest, &what)?;
+        if v.is_empty() {
+            return Err(format!(
+                "{what}: give the sample id, then its absorbance reading(s)"
+            ));
+        }
+        out.push((id.to_string(), v));
+    }
+    Ok(out)
 }
 
 /// What the set-up form for a new test holds, as typed.
@@ -178,6 +212,9 @@ impl TestForm {
             qc_rules: crate::lab::default_qc_rules(),
             acceptance: Default::default(),
             replicates: Default::default(),
+            reference: Default::default(),
+            critical: Default::default(),
+            direction: Default::default(),
         })
     }
 }

@@ -12,6 +12,7 @@ use serde::{Deserialize, Serialize};
 use crate::engine::acceptance::{AcceptanceLimits, Outcome};
 use crate::engine::calibration::{Curve, ModelKind, ReplicateUse, Weighting};
 use crate::engine::qc::{Rule, RuleSetting};
+use crate::engine::readings::{Direction, Limits};
 
 /// The schema version written into every saved lab and export.
 pub const SCHEMA_VERSION: u32 = 1;
@@ -74,6 +75,14 @@ pub struct TestSetup {
     pub acceptance: AcceptanceLimits,
     #[serde(default)]
     pub replicates: ReplicateUse,
+    /// Reference interval (H/L flags) and critical limits, in the result unit.
+    #[serde(default)]
+    pub reference: Limits,
+    #[serde(default)]
+    pub critical: Limits,
+    /// Which way the absorbance moves (fixed-time and kinetic tests).
+    #[serde(default)]
+    pub direction: Direction,
 }
 
 /// One calibrator's readings: assigned concentration and replicate absorbances.

@@ -488,10 +488,36 @@ impl ReportableRange {
     /// From the lowest calibrator up to the highest calibrator or the stated linearity
     /// limit, whichever is lower: results are never reported beyond either.
     pub fn for_fit(fit: &Fit, linearity_limit: Option<f64>) -> ReportableRange {
-        let r = fit.calibrated_range();
+        ReportableRange::from_calibrators(fit.points.iter().map(|p| p.conc), linearity_limit)
+    }
+
+    /// The same from the calibrator concentrations alone (a saved calibration). A
+    /// single-point calibration assumes the linear response the maker states, so it
+    /// counts from 0 up to the linearity limit (or its calibrator when none is given);
+    /// with no calibrators (a factor from the method, such as an enzyme factor) the
+    /// range is 0 up to the linearity limit.
+    pub fn from_calibrators(
+        concs: impl Iterator<Item = f64>,
+        linearity_limit: Option<f64>,
+    ) -> ReportableRange {
+        let (low, high) = concs.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), c| {
+            (lo.min(c), hi.max(c))
+        });
+        if low > high {
+            return ReportableRange {
+                low: 0.0,
+                high: linearity_limit.unwrap_or(f64::INFINITY),
+            };
+        }
+        if low == high {
+            return ReportableRange {
+                low: low.min(0.0),
+                high: linearity_limit.unwrap_or(high),
+            };
+        }
         ReportableRange {
-            low: r.low,
-            high: linearity_limit.map_or(r.high, |l| l.min(r.high)),
+            low,
+            high: linearity_limit.map_or(high, |l| l.min(high)),
         }
     }
 }
@@ -1115,6 +1141,10 @@ mod tests {
         assert_eq!(ReportableRange::for_fit(&f, Some(300.0)).high, 300.0);
         assert_eq!(ReportableRange::for_fit(&f, Some(500.0)).high, 400.0);
         assert_eq!(ReportableRange::for_fit(&f, None).high, 400.0);
+        let single = ReportableRange::from_calibrators([100.0, 100.0].into_iter(), Some(400.0));
+        assert_eq!((single.low, single.high), (0.0, 400.0));
+        let none = ReportableRange::from_calibrators(std::iter::empty(), Some(500.0));
+        assert_eq!((none.low, none.high), (0.0, 500.0));
         let r = f
             .curve
             .read(0.71, ReportableRange::for_fit(&f, Some(300.0)));

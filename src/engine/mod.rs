@@ -15,5 +15,6 @@ pub mod lm;
 pub mod qc;
 pub mod qcstats;
 pub mod readings;
+pub mod results;
 pub mod stability;
 pub mod units;

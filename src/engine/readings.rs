@@ -63,9 +63,10 @@ pub fn end_point_delta(
 }
 
 /// Which way the absorbance moves in a fixed-time or kinetic test.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum Direction {
+    #[default]
     Increasing,
     Decreasing,
 }

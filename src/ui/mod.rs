@@ -393,6 +393,20 @@ fn TodayBoard(
     }
 }
 
+/// The decision of a test's latest QC run if it was today, with its time; `None` when
+/// no run was recorded today.
+pub(super) fn qc_today(
+    l: &Lab,
+    t: &crate::lab::TestSetup,
+    today: chrono::NaiveDate,
+) -> Option<(chrono::DateTime<Local>, crate::engine::qc::Decision)> {
+    let h = l.control_history(&t.meta.id);
+    let verdicts = crate::engine::qc::evaluate(&h.targets, &h.values, &t.qc_rules).ok()?;
+    let (run, verdict) = h.runs.last().zip(verdicts.last())?;
+    let when = run.run_at.with_timezone(&Local);
+    (when.date_naive() == today).then_some((when, verdict.decision))
+}
+
 /// One test on today's board.
 fn today_row(l: &Lab, t: &crate::lab::TestSetup, today: chrono::NaiveDate) -> impl IntoView {
     let cal = l
@@ -403,42 +417,32 @@ fn today_row(l: &Lab, t: &crate::lab::TestSetup, today: chrono::NaiveDate) -> im
                 .format("%Y-%m-%d")
                 .to_string()
         });
-    let h = l.control_history(&t.meta.id);
-    let verdicts =
-        crate::engine::qc::evaluate(&h.targets, &h.values, &t.qc_rules).unwrap_or_default();
-    let last = h.runs.last().zip(verdicts.last());
-    let (latest, advice, class) = match last {
-        None => (
-            "none".to_string(),
-            "run the controls first".to_string(),
-            "decision-none",
-        ),
-        Some((run, verdict)) => {
-            let when = run.run_at.with_timezone(&Local);
-            let latest = format!(
-                "{} {}",
-                when.format("%Y-%m-%d %H:%M"),
-                verdict.decision.code()
-            );
-            if when.date_naive() != today {
-                (
-                    latest,
-                    "no QC run today: run the controls first".to_string(),
-                    "decision-none",
-                )
-            } else {
-                let class = match verdict.decision {
-                    crate::engine::qc::Decision::Accept => "decision-accept",
-                    crate::engine::qc::Decision::Warning => "decision-warning",
-                    crate::engine::qc::Decision::Reject => "decision-reject",
-                };
-                (
-                    latest,
-                    runs::decision_words(verdict.decision).to_string(),
-                    class,
-                )
-            }
+    let (latest, advice, class) = match qc_today(l, t, today) {
+        None => {
+            let last = l
+                .runs_of(&t.meta.id)
+                .last()
+                .map_or("none".to_string(), |r| {
+                    r.run_at
+                        .with_timezone(&Local)
+                        .format("%Y-%m-%d %H:%M")
+                        .to_string()
+                });
+            (
+                last,
+                "no QC run today: run the controls first".to_string(),
+                "decision-none",
+            )
         }
+        Some((when, decision)) => (
+            format!("{} {}", when.format("%Y-%m-%d %H:%M"), decision.code()),
+            runs::decision_words(decision).to_string(),
+            match decision {
+                crate::engine::qc::Decision::Accept => "decision-accept",
+                crate::engine::qc::Decision::Warning => "decision-warning",
+                crate::engine::qc::Decision::Reject => "decision-reject",
+            },
+        ),
     };
     view! {
         <tr class=class data-testid="today-test">

@@ -4,9 +4,12 @@
 use chrono::{Local, Utc};
 use leptos::prelude::*;
 
+use crate::engine::calibration::ReportableRange;
 use crate::engine::qc::{self, Decision, RunVerdict};
+use crate::engine::readings::{KineticPoint, KineticSettings};
+use crate::engine::results::{sample_result, Disposition, SampleReading, SampleResult};
 use crate::entry;
-use crate::lab::{ControlRun, Lab, RecordMeta, TestSetup};
+use crate::lab::{ControlRun, Lab, ReadingMode, RecordMeta, TestSetup};
 use crate::store;
 
 #[component]
@@ -85,6 +88,7 @@ fn TestRuns(
             <h3>{format!("{} {}", test.code, test.name)}</h3>
             <p class="muted">{summary}</p>
             <NewRun lab=lab.clone() test=test.clone() save=save technician=technician />
+            <SampleCalculator lab=lab.clone() test=test.clone() />
             <Show when=move || empty>
                 <p class="empty">"No QC runs recorded yet."</p>
             </Show>
@@ -101,11 +105,21 @@ fn results_text(values: &[Option<f64>], targets: &[qc::LevelTarget]) -> String {
         .iter()
         .zip(targets)
         .map(|(v, t)| match v {
-            Some(v) => format!("{v} ({:+.1} SD)", qc::z_score(*v, *t)),
+            Some(v) => format!("{v} ({} SD)", signed_1(qc::z_score(*v, *t))),
             None => "not run".into(),
         })
         .collect::<Vec<_>>()
         .join(" · ")
+}
+
+/// "+1.3", "−0.4", and "+0.0" rather than "-0.0".
+fn signed_1(x: f64) -> String {
+    let s = format!("{x:+.1}");
+    if s == "-0.0" {
+        "+0.0".into()
+    } else {
+        s
+    }
 }
 
 fn verdict_view(verdict: &RunVerdict, names: &[String], run_dates: &[String]) -> impl IntoView {
@@ -249,5 +263,165 @@ fn NewRun(
                 {move || message.get().map(|m| view! { <p class="outcome" data-testid="run-message">{m}</p> })}
             </div>
         </details>
+    }
+}
+
+/// Patient samples of one test through the calibration in use, gated by today's QC.
+#[component]
+fn SampleCalculator(lab: Lab, test: TestSetup) -> impl IntoView {
+    let Some(cal) = lab.current_calibration(&test.meta.id).cloned() else {
+        return view! { <p class="muted">"Patient samples: no accepted calibration yet; calibrate first."</p> }.into_any();
+    };
+    let range = ReportableRange::from_calibrators(
+        cal.calibrators.iter().map(|c| c.conc),
+        test.linearity_limit,
+    );
+    let gate = super::qc_today(&lab, &test, Local::now().date_naive()).map(|(_, d)| d);
+    let (gate_text, gate_class) = match gate {
+        None => (
+            "No QC run today: run the controls first. Results below are held.",
+            "decision-reject",
+        ),
+        Some(Decision::Reject) => (
+            "QC rejected today: hold these results, troubleshoot, rerun the controls.",
+            "decision-reject",
+        ),
+        Some(Decision::Warning) => (
+            "QC warning today: inspect the controls before releasing.",
+            "decision-warning",
+        ),
+        Some(Decision::Accept) => ("QC accepted today.", "decision-accept"),
+    };
+    let (blank_text, set_blank_text) = signal(String::new());
+    let (lines, set_lines) = signal(String::new());
+    let (interval, set_interval) = signal("60".to_string());
+    let mode = test.mode;
+    let t = test.clone();
+    let rows = move || -> Result<Vec<(String, SampleResult)>, String> {
+        let samples = entry::sample_lines(&lines.get())?;
+        let blank = entry::numbers(&blank_text.get(), "reagent blank")?;
+        let step = entry::numbers(&interval.get(), "interval")?
+            .first()
+            .copied()
+            .unwrap_or(60.0);
+        samples
+            .into_iter()
+            .map(|(id, v)| {
+                let reading = match mode {
+                    ReadingMode::EndPoint => SampleReading::EndPoint {
+                        sample: v[0],
+                        reagent_blank: blank.first().copied().unwrap_or(0.0),
+                        sample_blank: v.get(1).copied(),
+                    },
+                    ReadingMode::FixedTime => {
+                        let [a_t1, a_t2] = v[..] else {
+                            return Err(format!("{id}: give A(t1) and A(t2)"));
+                        };
+                        SampleReading::FixedTime {
+                            a_t1,
+                            a_t2,
+                            direction: t.direction,
+                        }
+                    }
+                    ReadingMode::Kinetic => SampleReading::Kinetic {
+                        points: v
+                            .iter()
+                            .enumerate()
+                            .map(|(i, &a)| KineticPoint {
+                                t_s: i as f64 * step,
+                                a,
+                            })
+                            .collect(),
+                        settings: KineticSettings {
+                            direction: Some(t.direction),
+                            ..Default::default()
+                        },
+                    },
+                };
+                sample_result(&reading, &cal.curve, range, t.reference, t.critical)
+                    .map(|r| (id.clone(), r))
+                    .map_err(|e| format!("{id}: {e}"))
+            })
+            .collect()
+    };
+    let unit = test.unit.clone();
+    let held = gate != Some(Decision::Accept) && gate != Some(Decision::Warning);
+    let hint = match mode {
+        ReadingMode::EndPoint => "one sample per line: id, absorbance (and a sample blank if read)",
+        ReadingMode::FixedTime => "one sample per line: id, A(t1), A(t2)",
+        ReadingMode::Kinetic => "one sample per line: id, then the absorbances at each interval",
+    };
+    let code = test.code.clone();
+    view! {
+        <details class="samples">
+            <summary data-testid=format!("samples-{code}")>"Patient samples"</summary>
+            <p class=format!("gate {gate_class}") data-testid="qc-gate">{gate_text}</p>
+            <div class="form">
+                <Show when=move || mode == ReadingMode::EndPoint>
+                    <label>"Reagent blank absorbance "
+                        <input size="8" data-testid="samples-blank" on:input=move |ev| set_blank_text.set(event_target_value(&ev)) />
+                    </label>
+                </Show>
+                <Show when=move || mode == ReadingMode::Kinetic>
+                    <label>"Interval, s "
+                        <input size="5" data-testid="samples-interval" prop:value=move || interval.get()
+                            on:input=move |ev| set_interval.set(event_target_value(&ev)) />
+                    </label>
+                </Show>
+                <label class="block">{hint}
+                    <textarea rows="4" data-testid="samples-lines" on:input=move |ev| set_lines.set(event_target_value(&ev))></textarea>
+                </label>
+            </div>
+            {move || match rows() {
+                Err(e) => view! { <p class="problem" data-testid="samples-problem">{e}</p> }.into_any(),
+                Ok(rows) if rows.is_empty() => ().into_any(),
+                Ok(rows) => view! {
+                    <table data-testid="samples-table">
+                        <thead><tr><th>"Sample"</th><th>"Signal"</th><th>{format!("Result ({unit})")}</th><th>"Flag"</th><th>"What to do"</th></tr></thead>
+                        <tbody>
+                            {rows.into_iter().map(|(id, r)| sample_row(id, r, held)).collect_view()}
+                        </tbody>
+                    </table>
+                }.into_any(),
+            }}
+        </details>
+    }
+    .into_any()
+}
+
+fn sample_row(id: String, r: SampleResult, held: bool) -> impl IntoView {
+    let result = match (r.disposition, r.conc) {
+        (Disposition::Report, Some(c)) => format!("{c:.4}"),
+        (Disposition::BelowRange, _) => "below the lowest calibrator".to_string(),
+        (Disposition::DiluteAndRepeat, Some(c)) => format!("at least about {c:.0}"),
+        _ => "–".to_string(),
+    };
+    let mut todo = match r.disposition {
+        Disposition::Report if held => "held until QC is accepted".to_string(),
+        Disposition::Report => "may be released per the lab's procedure".to_string(),
+        Disposition::BelowRange => {
+            "report as below the measuring range, per the lab's policy".to_string()
+        }
+        Disposition::DiluteAndRepeat => match r.dilution {
+            Some(d) => format!(
+                "dilute 1:{} (1 part sample + {} parts diluent) and repeat",
+                d.factor,
+                d.factor - 1
+            ),
+            None => "dilute and repeat".to_string(),
+        },
+        Disposition::Repeat => "repeat the measurement".to_string(),
+    };
+    if !r.notes.is_empty() {
+        todo = format!("{todo}. {}", r.notes.join("; "));
+    }
+    view! {
+        <tr data-testid="sample-row">
+            <td>{id}</td>
+            <td>{format!("{:.4}", r.signal)}</td>
+            <td>{result}</td>
+            <td>{r.flag.map(|f| f.letter()).unwrap_or("")}</td>
+            <td>{todo}</td>
+        </tr>
     }
 }

@@ -38,3 +38,29 @@ test("a new QC run is judged before it is saved", async () => {
     await context.close();
   }
 });
+
+test("patient samples go through the calibration in use and are held when QC rejects", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "nav-runs").click();
+    const card = byTestId(page, "runs-GLU");
+    await card.locator('[data-testid="samples-GLU"]').click();
+    // The demo's glucose QC this morning is rejected (an invented shift).
+    assert.match(await card.locator('[data-testid="qc-gate"]').innerText(), /QC rejected today: hold/);
+    await card.locator('[data-testid="samples-blank"]').fill("0.050");
+    await card.locator('[data-testid="samples-lines"]').fill("S1 0.350\nS2 2.100\nS3 0.2O");
+    assert.match(await card.locator('[data-testid="samples-problem"]').innerText(), /S3/);
+    await card.locator('[data-testid="samples-lines"]').fill("S1 0.350\nS2 2.100\nS3 0.200");
+    const rows = card.locator('[data-testid="sample-row"]');
+    await rows.first().waitFor();
+    assert.equal(await rows.count(), 3);
+    assert.match(await rows.nth(0).innerText(), /S1.*held until QC is accepted/s);
+    assert.match(await rows.nth(1).innerText(), /S2.*dilute 1:2/s);
+    assert.match(await rows.nth(2).innerText(), /S3.*LL/s);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
