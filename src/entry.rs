@@ -133,6 +133,84 @@ pub fn sample_lines(text: &str) -> Result<Vec<(String, Vec<f64>)>, String> {
     Ok(out)
 }
 
+/// A material opened or reconstituted now, as typed in the materials form. Stabilities
+/// are typed in days (as inserts state them) and kept in hours.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct MaterialForm {
+    /// "reagent", "calibrator" or "control".
+    pub kind: String,
+    pub name: String,
+    pub lot: String,
+    /// "2027-03" or "2027-03-31".
+    pub expiry: String,
+    pub in_use_days: String,
+    /// "ALT 5; Bilirubin 2": analytes with their own, shorter stability in days.
+    pub analytes: String,
+}
+
+impl MaterialForm {
+    pub fn into_material(
+        self,
+        meta: crate::lab::RecordMeta,
+        opened_at: chrono::DateTime<chrono::Utc>,
+    ) -> Result<crate::lab::MaterialRecord, String> {
+        use crate::engine::stability::{AnalyteStability, ExpiryDate, Material};
+        use crate::lab::MaterialKind;
+        let kind = match self.kind.as_str() {
+            "reagent" => MaterialKind::Reagent,
+            "calibrator" => MaterialKind::Calibrator,
+            "control" => MaterialKind::Control,
+            k => {
+                return Err(format!(
+                    "kind: {k:?}; choose reagent, calibrator or control"
+                ))
+            }
+        };
+        let name = self.name.trim().to_string();
+        if name.is_empty() {
+            return Err("name: say which material, e.g. Glucose reagent R1".into());
+        }
+        let expiry: ExpiryDate = self.expiry.parse().map_err(|e| format!("expiry: {e}"))?;
+        let in_use_days = one_number(&self.in_use_days, "stability after opening")?
+            .filter(|d| *d > 0.0)
+            .ok_or("stability after opening: give the days from the insert, a number above 0")?;
+        let mut analytes = Vec::new();
+        for part in self
+            .analytes
+            .split(';')
+            .map(str::trim)
+            .filter(|p| !p.is_empty())
+        {
+            let (analyte, days) = part.rsplit_once(char::is_whitespace).ok_or_else(|| {
+                format!("analytes: {part:?}; write the analyte and its days, e.g. \"ALT 5\"")
+            })?;
+            let days = one_number(days, &format!("analytes: {analyte}"))?
+                .filter(|d| *d > 0.0)
+                .ok_or_else(|| format!("analytes: {analyte}: give its days, a number above 0"))?;
+            analytes.push(AnalyteStability {
+                analyte: analyte.trim().to_string(),
+                in_use_hours: Some(days * 24.0),
+                after_thaw_hours: None,
+            });
+        }
+        Ok(crate::lab::MaterialRecord {
+            meta,
+            kind,
+            name,
+            lot: self.lot.trim().to_string(),
+            stability: Material {
+                expiry,
+                opened_at: Some(opened_at),
+                in_use_hours: Some(in_use_days * 24.0),
+                on_board_since: None,
+                on_board_hours: None,
+                frozen: None,
+                analytes,
+            },
+        })
+    }
+}
+
 /// What the set-up form for a new test holds, as typed.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct TestForm {
@@ -306,6 +384,41 @@ mod form_tests {
             .into_test(&lab, meta())
             .unwrap_err()
             .contains("between 300 and 1000"));
+    }
+
+    #[test]
+    fn a_material_form_with_analytes() {
+        let f = MaterialForm {
+            kind: "control".into(),
+            name: "Control N".into(),
+            lot: "N1".into(),
+            expiry: "2027-02".into(),
+            in_use_days: "7".into(),
+            analytes: "ALT 5; Total bilirubin 2".into(),
+        };
+        let m = f
+            .clone()
+            .into_material(meta(), chrono::DateTime::UNIX_EPOCH)
+            .unwrap();
+        assert_eq!(m.stability.in_use_hours, Some(168.0));
+        assert_eq!(m.stability.analytes[1].analyte, "Total bilirubin");
+        assert_eq!(m.stability.analytes[1].in_use_hours, Some(48.0));
+        let bad = MaterialForm {
+            expiry: "31.03.2027".into(),
+            ..f.clone()
+        };
+        assert!(bad
+            .into_material(meta(), chrono::DateTime::UNIX_EPOCH)
+            .unwrap_err()
+            .starts_with("expiry"));
+        let bad = MaterialForm {
+            analytes: "ALT".into(),
+            ..f
+        };
+        assert!(bad
+            .into_material(meta(), chrono::DateTime::UNIX_EPOCH)
+            .unwrap_err()
+            .starts_with("analytes"));
     }
 
     #[test]

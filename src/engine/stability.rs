@@ -419,6 +419,24 @@ fn pick(
     }
 }
 
+/// Time left in words: "3 d 4 h", "5 h 20 min", "expired 2 d ago".
+pub fn describe_left(hours_left: f64) -> String {
+    let minutes = (hours_left.abs() * 60.0).round() as i64;
+    let (d, h, m) = (minutes / 1440, minutes % 1440 / 60, minutes % 60);
+    let span = if d > 0 {
+        format!("{d} d {h} h")
+    } else if h > 0 {
+        format!("{h} h {m} min")
+    } else {
+        format!("{m} min")
+    };
+    if hours_left < 0.0 {
+        format!("expired {span} ago")
+    } else {
+        format!("{span} left")
+    }
+}
+
 /// The local calendar date of an instant (for display and for tests).
 pub fn local_date<Tz: TimeZone>(t: DateTime<Utc>, tz: &Tz) -> NaiveDate {
     t.with_timezone(tz).date_naive()
@@ -596,6 +614,14 @@ mod tests {
         .unwrap();
         assert_eq!(r.material.governed_by, Limit::ThawedMoreThanOnce);
         assert_eq!(r.material.state, StabilityState::Expired);
+    }
+
+    #[test]
+    fn time_left_in_words() {
+        assert_eq!(describe_left(76.0), "3 d 4 h left");
+        assert_eq!(describe_left(5.0 + 20.0 / 60.0), "5 h 20 min left");
+        assert_eq!(describe_left(-48.5), "expired 2 d 0 h ago");
+        assert_eq!(describe_left(0.25), "15 min left");
     }
 
     #[test]

@@ -6,6 +6,7 @@
 
 mod calibration;
 mod chart;
+mod materials;
 mod runs;
 mod setup;
 
@@ -189,7 +190,7 @@ pub fn App() -> impl IntoView {
                 <ControlCharts lab=lab />
             </ViewPanel>
             <ViewPanel view=View::Materials active=active>
-                <MaterialList lab=lab />
+                <materials::MaterialsView lab=lab save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Records active=active>
                 <RecordsPanel lab=lab set_lab=set_lab set_problem=set_problem />
@@ -361,7 +362,7 @@ fn TodayBoard(
                             what,
                             format!(
                                 "{} — {} {}",
-                                state_word(u.state),
+                                materials::state_word(u.state),
                                 u.governed_by.describe(),
                                 u.until.with_timezone(&Local).format("%Y-%m-%d %H:%M")
                             ),
@@ -454,14 +455,6 @@ fn today_row(l: &Lab, t: &crate::lab::TestSetup, today: chrono::NaiveDate) -> im
     }
 }
 
-fn state_word(s: StabilityState) -> &'static str {
-    match s {
-        StabilityState::Ok => "usable",
-        StabilityState::Expiring => "expiring soon",
-        StabilityState::Expired => "expired: do not use",
-    }
-}
-
 #[component]
 fn ControlCharts(
     /// The lab being worked on.
@@ -499,69 +492,6 @@ fn ControlCharts(
                 .map(|series| view! { <chart::LeveyJenningsChart series=series /> })
                 .collect_view()
                 .into_any()
-        })
-    }
-}
-
-#[component]
-fn MaterialList(
-    /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
-) -> impl IntoView {
-    move || {
-        lab.with(|l| match l {
-            None => view! { <EmptyState text=NO_LAB /> }.into_any(),
-            Some(l) if l.materials.is_empty() => {
-                view! { <EmptyState text="No reagents, calibrators or controls in use." /> }
-                    .into_any()
-            }
-            Some(l) => {
-                let now = Utc::now();
-                let rows = l
-                    .materials
-                    .iter()
-                    .map(|m| {
-                        let (until, why, state) = match stability::evaluate(
-                            &m.stability,
-                            now,
-                            &Local,
-                            WarningWindow::default(),
-                        ) {
-                            Ok(r) => (
-                                r.material
-                                    .until
-                                    .with_timezone(&Local)
-                                    .format("%Y-%m-%d %H:%M")
-                                    .to_string(),
-                                r.material.governed_by.describe().to_string(),
-                                state_word(r.material.state).to_string(),
-                            ),
-                            Err(e) => ("?".into(), e.0, "check the record".into()),
-                        };
-                        view! {
-                            <tr>
-                                <td>{m.name.clone()}</td>
-                                <td>{m.lot.clone()}</td>
-                                <td>{until}</td>
-                                <td>{why}</td>
-                                <td>{state}</td>
-                            </tr>
-                        }
-                    })
-                    .collect_view();
-                view! {
-                    <table>
-                        <thead>
-                            <tr>
-                                <th>"Material"</th><th>"Lot"</th><th>"Usable until"</th>
-                                <th>"Set by"</th><th>"State"</th>
-                            </tr>
-                        </thead>
-                        <tbody>{rows}</tbody>
-                    </table>
-                }
-                .into_any()
-            }
         })
     }
 }

@@ -1,0 +1,174 @@
+//! The materials view: every reagent, calibrator and control in use with its
+//! usable-until (and each analyte's own), counting down; and the form that records a
+//! material opened or reconstituted now, by whom.
+
+use chrono::{Local, Utc};
+use leptos::prelude::*;
+
+use crate::engine::stability::{self, StabilityState, UsableUntil, WarningWindow};
+use crate::entry::MaterialForm;
+use crate::lab::{Lab, RecordMeta};
+use crate::store;
+
+pub(super) fn state_word(s: StabilityState) -> &'static str {
+    match s {
+        StabilityState::Ok => "usable",
+        StabilityState::Expiring => "expiring soon",
+        StabilityState::Expired => "expired: do not use",
+    }
+}
+
+fn row(what: String, lot: String, by: String, u: &UsableUntil) -> impl IntoView {
+    let class = match u.state {
+        StabilityState::Ok => "state-ok",
+        StabilityState::Expiring => "state-expiring",
+        StabilityState::Expired => "state-expired",
+    };
+    view! {
+        <tr class=class data-testid="material-row">
+            <td>{what}</td>
+            <td>{lot}</td>
+            <td>{by}</td>
+            <td>{u.until.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()}</td>
+            <td>{stability::describe_left(u.hours_left)}</td>
+            <td>{u.governed_by.describe()}</td>
+            <td>{state_word(u.state)}{u.remarks.iter().map(|r| format!("; {r}")).collect::<String>()}</td>
+        </tr>
+    }
+}
+
+#[component]
+pub fn MaterialsView(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+    /// Saves a changed lab.
+    save: Callback<Lab>,
+    /// The technician's initials.
+    technician: ReadSignal<String>,
+) -> impl IntoView {
+    let table = move || {
+        lab.with(|l| {
+            let Some(l) = l.as_ref().filter(|l| !l.materials.is_empty()) else {
+                return view! { <p class="empty">"No reagents, calibrators or controls in use."</p> }.into_any();
+            };
+            let now = Utc::now();
+            let rows = l
+                .materials
+                .iter()
+                .map(|m| match stability::evaluate(&m.stability, now, &Local, WarningWindow::default()) {
+                    Ok(r) => {
+                        let main = row(m.name.clone(), m.lot.clone(), m.meta.by.clone(), &r.material);
+                        let per_analyte = r
+                            .analytes
+                            .iter()
+                            .map(|(a, u)| row(format!("  {} — {a}", m.name), m.lot.clone(), m.meta.by.clone(), u))
+                            .collect_view();
+                        view! { {main}{per_analyte} }.into_any()
+                    }
+                    Err(e) => view! {
+                        <tr><td>{m.name.clone()}</td><td colspan="6">{format!("check this record: {e}")}</td></tr>
+                    }
+                    .into_any(),
+                })
+                .collect_view();
+            view! {
+                <table>
+                    <thead>
+                        <tr>
+                            <th>"Material"</th><th>"Lot"</th><th>"Opened by"</th><th>"Usable until"</th>
+                            <th>"Time left"</th><th>"Set by"</th><th>"State"</th>
+                        </tr>
+                    </thead>
+                    <tbody>{rows}</tbody>
+                </table>
+            }
+            .into_any()
+        })
+    };
+    view! {
+        <section class="card wide">
+            {table}
+            <NewMaterial lab=lab save=save technician=technician />
+            <p class="muted">
+                "The time left counts from when this page was drawn; switch views to refresh it. \
+                 The maker's instructions for use decide every stability."
+            </p>
+        </section>
+    }
+}
+
+#[component]
+fn NewMaterial(
+    lab: ReadSignal<Option<Lab>>,
+    save: Callback<Lab>,
+    technician: ReadSignal<String>,
+) -> impl IntoView {
+    let (form, set_form) = signal(MaterialForm {
+        kind: "reagent".into(),
+        ..Default::default()
+    });
+    let (message, set_message) = signal::<Option<String>>(None);
+    let input = move |name: &'static str, label: &'static str, placeholder: &'static str| {
+        view! {
+            <label>
+                {label}
+                <input
+                    placeholder=placeholder
+                    data-testid=format!("material-{name}")
+                    on:input=move |ev| {
+                        let v = event_target_value(&ev);
+                        set_form.update(|f| match name {
+                            "name" => f.name = v,
+                            "lot" => f.lot = v,
+                            "expiry" => f.expiry = v,
+                            "days" => f.in_use_days = v,
+                            _ => f.analytes = v,
+                        })
+                    }
+                />
+            </label>
+        }
+    };
+    let add = move |_| {
+        let initials = technician.get_untracked();
+        if initials.trim().is_empty() {
+            return set_message.set(Some(
+                "enter your initials (top right) first: every record says who did it".into(),
+            ));
+        }
+        let now = Utc::now();
+        let meta = RecordMeta::new(store::random_bytes(), now, &initials);
+        match form.get_untracked().into_material(meta, now) {
+            Ok(m) => {
+                let mut changed = lab.get_untracked().unwrap_or_else(|| Lab::empty("My lab"));
+                let name = m.name.clone();
+                changed.materials.push(m);
+                save.run(changed);
+                set_message.set(Some(format!("{name}: opened now by {initials}.")));
+            }
+            Err(e) => set_message.set(Some(e)),
+        }
+    };
+    view! {
+        <details class="new-material">
+            <summary data-testid="new-material">"Record a material opened or reconstituted now"</summary>
+            <div class="form grid">
+                <label>
+                    "Kind "
+                    <select data-testid="material-kind" on:change=move |ev| set_form.update(|f| f.kind = event_target_value(&ev))>
+                        <option value="reagent">"reagent"</option>
+                        <option value="calibrator">"calibrator"</option>
+                        <option value="control">"control"</option>
+                    </select>
+                </label>
+                {input("name", "Name ", "Glucose reagent R1")}
+                {input("lot", "Lot ", "DG-4471")}
+                {input("expiry", "Maker's expiry ", "2027-05 or 2027-05-31")}
+                {input("days", "Stable after opening, days ", "30")}
+                {input("analytes", "Analytes with shorter stability ", "ALT 5; Bilirubin 2")}
+                <button data-testid="add-material" on:click=add>"Record"</button>
+                {move || message.get().map(|m| view! { <p class="outcome" data-testid="material-message">{m}</p> })}
+            </div>
+        </details>
+    }
+}

@@ -1,0 +1,39 @@
+// Materials: a control reconstituted now, by whom, with an analyte of shorter
+// stability; the usable-until of each, counted down by the engine.
+import { test } from "node:test";
+import assert from "node:assert/strict";
+import { openApp, newProfile, byTestId } from "./helpers.mjs";
+
+test("a reconstituted control is recorded with its own and its analytes' stability", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "initials").fill("lb");
+    await byTestId(page, "initials").press("Enter");
+    await byTestId(page, "nav-materials").click();
+    await byTestId(page, "new-material").click();
+    await byTestId(page, "material-kind").selectOption("control");
+    await byTestId(page, "material-name").fill("Control N (lyophilised)");
+    await byTestId(page, "material-lot").fill("N-0425");
+    await byTestId(page, "material-expiry").fill("31/12/2030");
+    await byTestId(page, "material-days").fill("7");
+    await byTestId(page, "material-analytes").fill("Bilirubin 2");
+    await byTestId(page, "add-material").click();
+    assert.match(await byTestId(page, "material-message").innerText(), /^expiry: .*YYYY-MM-DD or YYYY-MM/);
+    await byTestId(page, "material-expiry").fill("2030-12");
+    await byTestId(page, "add-material").click();
+    const rows = byTestId(page, "material-row");
+    await rows.first().waitFor();
+    assert.equal(await rows.count(), 2);
+    // Opened now, stable 7 days: 168 h left; the warning window is the smaller of 48 h
+    // and a quarter of 168 h, so it is usable.
+    assert.match(await rows.nth(0).innerText(), /Control N.*LB.*(6 d 23 h|7 d 0 h) left.*stability after opening.*usable/s);
+    // Bilirubin, 2 days: 48 h left, window min(48 h, 12 h) = 12 h, so usable too.
+    assert.match(await rows.nth(1).innerText(), /Bilirubin.*(1 d 23 h|2 d 0 h) left.*usable/s);
+    await page.reload();
+    await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached" });
+    assert.equal(await byTestId(page, "material-row").count(), 2);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
