@@ -1,15 +1,14 @@
 //! The calibration view: each test's calibration in use and its trend, and the form for
 //! a new calibration with a live fit and verdict from the engine.
 
-use chrono::{Local, Utc};
+use chrono::Local;
 use leptos::prelude::*;
 
 use crate::engine::acceptance::{self, CalibrationReadings, Outcome, Verdict};
 use crate::engine::calibration::{self, Fit, ModelKind, ReplicateUse, Weighting};
 use crate::engine::qcstats::summarize;
 use crate::entry;
-use crate::lab::{CalibrationRecord, CalibratorReading, Lab, RecordMeta, TestSetup};
-use crate::store;
+use crate::lab::{CalibrationRecord, CalibratorReading, Lab, TestSetup};
 
 /// Everything the view shows for one test.
 #[component]
@@ -198,14 +197,10 @@ fn NewCalibration(
     });
     let test_id = test.meta.id.clone();
     let on_save = move |_| {
-        let initials = technician.get_untracked();
-        if initials.trim().is_empty() {
-            set_message.set(Some(
-                "enter your initials (top right) before saving: every record says who did it"
-                    .into(),
-            ));
-            return;
-        }
+        let (meta, now) = match super::new_record(technician) {
+            Ok(m) => m,
+            Err(e) => return set_message.set(Some(e)),
+        };
         let Some(Ok(p)) = result.get_untracked() else {
             set_message.set(Some(
                 "nothing to save: enter readings that can be fitted".into(),
@@ -218,9 +213,8 @@ fn NewCalibration(
             ));
             return;
         };
-        let now = Utc::now();
         let record = CalibrationRecord {
-            meta: RecordMeta::new(store::random_bytes(), now, &initials),
+            meta,
             test_id: test_id.clone(),
             performed_at: now,
             model: model.get_untracked(),

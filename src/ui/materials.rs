@@ -7,8 +7,7 @@ use leptos::prelude::*;
 
 use crate::engine::stability::{self, StabilityState, UsableUntil, WarningWindow};
 use crate::entry::MaterialForm;
-use crate::lab::{Lab, RecordMeta};
-use crate::store;
+use crate::lab::Lab;
 
 pub(super) fn state_word(s: StabilityState) -> &'static str {
     match s {
@@ -130,14 +129,11 @@ fn NewMaterial(
         }
     };
     let add = move |_| {
-        let initials = technician.get_untracked();
-        if initials.trim().is_empty() {
-            return set_message.set(Some(
-                "enter your initials (top right) first: every record says who did it".into(),
-            ));
-        }
-        let now = Utc::now();
-        let meta = RecordMeta::new(store::random_bytes(), now, &initials);
+        let (meta, now) = match super::new_record(technician) {
+            Ok(m) => m,
+            Err(e) => return set_message.set(Some(e)),
+        };
+        let initials = meta.by.clone();
         match form.get_untracked().into_material(meta, now) {
             Ok(m) => {
                 let mut changed = lab.get_untracked().unwrap_or_else(|| Lab::empty("My lab"));

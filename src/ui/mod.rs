@@ -18,6 +18,22 @@ use crate::engine::stability::{self, StabilityState, WarningWindow};
 use crate::lab::Lab;
 use crate::store;
 
+/// A new record made now by the technician on duty (meta and the instant), or the
+/// message asking for initials: every record says who did it.
+pub(super) fn new_record(
+    technician: ReadSignal<String>,
+) -> Result<(crate::lab::RecordMeta, chrono::DateTime<Utc>), String> {
+    let initials = technician.get_untracked();
+    if initials.trim().is_empty() {
+        return Err("enter your initials (top right) first: every record says who did it".into());
+    }
+    let now = Utc::now();
+    Ok((
+        crate::lab::RecordMeta::new(store::random_bytes(), now, &initials),
+        now,
+    ))
+}
+
 /// The demo lab, embedded at build time from `demo-data/`.
 pub const DEMO_LAB: &str = include_str!("../../demo-data/demo-lab.json");
 

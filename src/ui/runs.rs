@@ -1,7 +1,7 @@
 //! The QC runs view: each test's runs, newest first, with the engine's decision, and
 //! the form for a new run whose decision is shown before it is saved.
 
-use chrono::{Local, Utc};
+use chrono::Local;
 use leptos::prelude::*;
 
 use crate::engine::calibration::ReportableRange;
@@ -9,8 +9,7 @@ use crate::engine::qc::{self, Decision, RunVerdict};
 use crate::engine::readings::{KineticPoint, KineticSettings};
 use crate::engine::results::{sample_result, Disposition, SampleReading, SampleResult};
 use crate::entry;
-use crate::lab::{ControlRun, Lab, ReadingMode, RecordMeta, TestSetup};
-use crate::store;
+use crate::lab::{ControlRun, Lab, ReadingMode, TestSetup};
 
 #[component]
 pub fn RunsView(
@@ -191,22 +190,17 @@ fn NewRun(
     });
     let test_id = test.meta.id.clone();
     let on_save = move |_| {
-        let initials = technician.get_untracked();
-        if initials.trim().is_empty() {
-            set_message.set(Some(
-                "enter your initials (top right) before saving: every record says who did it"
-                    .into(),
-            ));
-            return;
-        }
+        let (meta, now) = match super::new_record(technician) {
+            Ok(m) => m,
+            Err(e) => return set_message.set(Some(e)),
+        };
         let Some(Ok((values, verdict))) = preview.get_untracked() else {
             set_message.set(Some("enter at least one control result first".into()));
             return;
         };
-        let now = Utc::now();
         let mut changed = lab.clone();
         changed.control_runs.push(ControlRun {
-            meta: RecordMeta::new(store::random_bytes(), now, &initials),
+            meta,
             test_id: test_id.clone(),
             run_at: now,
             level_ids: level_ids.clone(),

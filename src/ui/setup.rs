@@ -1,24 +1,14 @@
 //! The set-up view: the lab's tests and their control levels, added through forms the
 //! plain-Rust `entry` module checks; and the demo lab.
 
-use chrono::Utc;
 use leptos::prelude::*;
 
 use crate::engine::calibration::ModelKind;
 use crate::entry::{LevelForm, TestForm};
-use crate::lab::{Lab, RecordMeta};
-use crate::store;
+use crate::lab::Lab;
 
-fn meta_or_message(technician: ReadSignal<String>) -> Result<RecordMeta, String> {
-    let initials = technician.get_untracked();
-    if initials.trim().is_empty() {
-        return Err("enter your initials (top right) first: every record says who did it".into());
-    }
-    Ok(RecordMeta::new(
-        store::random_bytes(),
-        Utc::now(),
-        &initials,
-    ))
+fn meta_or_message(technician: ReadSignal<String>) -> Result<crate::lab::RecordMeta, String> {
+    super::new_record(technician).map(|(meta, _)| meta)
 }
 
 #[component]
