@@ -8,6 +8,7 @@
 pub mod calc;
 pub mod engine;
 pub mod entry;
+pub mod export;
 pub mod lab;
 pub mod store;
 pub mod ui;

@@ -275,6 +275,24 @@ fn RecordsPanel(
             Err(e) => set_problem.set(Some(e.0)),
         }
     };
+    let csv = move |which: &'static str| {
+        let text = lab.with(|l| {
+            l.as_ref().map(|l| match which {
+                "qc" => crate::export::qc_results_csv(l),
+                _ => crate::export::calibrations_csv(l),
+            })
+        });
+        let Some(text) = text else {
+            return set_problem.set(Some(
+                "nothing to export yet: set up the lab or load the demo".into(),
+            ));
+        };
+        let name = format!("cuvette-{which}-{}.csv", Local::now().format("%Y-%m-%d"));
+        match text.and_then(|t| store::download(&name, "text/csv", &t).map_err(|e| e.0)) {
+            Ok(()) => set_outcome.set(Some(format!("Exported {name}."))),
+            Err(e) => set_problem.set(Some(e)),
+        }
+    };
     let import = move |ev: leptos::ev::Event| {
         let input: web_sys::HtmlInputElement = event_target(&ev);
         let Some(file) = input.files().and_then(|f| f.get(0)) else {
@@ -332,6 +350,14 @@ fn RecordsPanel(
                 <button data-testid="export-json" on:click=export>"Export all records (JSON)"</button>
             </p>
             <p>
+                "For a spreadsheet: "
+                <button data-testid="export-qc-csv" on:click=move |_| csv("qc")>"QC results (CSV)"</button>
+                " "
+                <button data-testid="export-calibrations-csv" on:click=move |_| csv("calibrations")>
+                    "Calibrations (CSV)"
+                </button>
+            </p>
+            <p>
                 <label>
                     "Import records from another PC (JSON): "
                     <input type="file" accept=".json,application/json" data-testid="import-json"
@@ -386,9 +412,17 @@ fn TodayBoard(
                     })
                     .collect();
                 let no_attention = attention.is_empty();
+                let print = |_| {
+                    if let Some(w) = web_sys::window() {
+                        let _ = w.print();
+                    }
+                };
                 view! {
+                    <p class="no-print">
+                        <button data-testid="print-today" on:click=print>"Print today's sheet"</button>
+                    </p>
                     <section class="card wide">
-                        <h3>"Tests"</h3>
+                        <h3>{format!("Tests — {}", today.format("%Y-%m-%d"))}</h3>
                         <table data-testid="today-tests">
                             <thead><tr><th>"Test"</th><th>"Calibration in use"</th><th>"Latest QC run"</th><th>"Before patient samples"</th></tr></thead>
                             <tbody>{tests}</tbody>

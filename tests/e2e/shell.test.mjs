@@ -2,7 +2,7 @@
 // it saves across a reload and a browser restart, and logs no errors.
 import { test } from "node:test";
 import assert from "node:assert/strict";
-import { copyFileSync, mkdtempSync, writeFileSync } from "node:fs";
+import { copyFileSync, mkdtempSync, readFileSync, writeFileSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
 import { openApp, newProfile, byTestId, singleFile } from "./helpers.mjs";
@@ -172,6 +172,30 @@ test("today's board: each test's calibration and QC state, and materials to act 
     assert.match(await rows.first().innerText(), /GLU.*reject: hold patient results/s);
     const materials = await byTestId(page, "today-materials").innerText();
     assert.match(materials, /frozen aliquot/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("QC results and calibrations export as CSV for a spreadsheet", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "nav-records").click();
+    const [download] = await Promise.all([
+      page.waitForEvent("download"),
+      byTestId(page, "export-qc-csv").click(),
+    ]);
+    assert.match(download.suggestedFilename(), /^cuvette-qc-\d{4}-\d{2}-\d{2}\.csv$/);
+    const path = join(mkdtempSync(join(tmpdir(), "csv-")), "qc.csv");
+    await download.saveAs(path);
+    const lines = readFileSync(path, "utf8").trim().split("\n");
+    assert.equal(lines[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,by,record_id");
+    // 3 demo tests × 26 runs × 2 levels, one creatinine level not run once.
+    assert.equal(lines.length - 1, 155);
+    assert.ok(lines.slice(1).every((l) => /,(accept|warning|reject),/.test(l)));
     assert.deepEqual(problems, []);
   } finally {
     await context.close();
