@@ -1,7 +1,10 @@
 //! Series for charts, computed here so the drawing code only draws.
 //!
 //! A Levey–Jennings chart plots each control result in run order against the target
-//! mean with lines at ±1, ±2 and ±3 SD.
+//! mean with lines at ±1, ±2 and ±3 SD. Each point carries its run's QC decision so
+//! the chart can mark warnings and rejections (by shape as well as colour).
+
+use super::qc::Decision;
 
 /// One control level's Levey–Jennings chart.
 #[derive(Debug, Clone, PartialEq)]
@@ -11,6 +14,8 @@ pub struct LeveyJennings {
     pub sd: f64,
     /// (run number from 1, value); runs where the level was not measured are left out.
     pub points: Vec<(f64, f64)>,
+    /// The decision of each point's run (same order as `points`).
+    pub decisions: Vec<Decision>,
     /// Number of runs on the x axis.
     pub runs: usize,
     /// y range: at least mean ± 4 SD, widened to show every point.
@@ -20,15 +25,29 @@ pub struct LeveyJennings {
 
 impl LeveyJennings {
     /// Build the chart series; `None` when the SD is not a positive number.
-    pub fn new(title: &str, mean: f64, sd: f64, values: &[Option<f64>]) -> Option<LeveyJennings> {
+    /// `decisions[i]` is run i's decision (missing ones count as accept).
+    pub fn new(
+        title: &str,
+        mean: f64,
+        sd: f64,
+        values: &[Option<f64>],
+        decisions: &[Decision],
+    ) -> Option<LeveyJennings> {
         if !(sd > 0.0 && sd.is_finite() && mean.is_finite()) {
             return None;
         }
-        let points: Vec<(f64, f64)> = values
+        let (points, decisions): (Vec<(f64, f64)>, Vec<Decision>) = values
             .iter()
             .enumerate()
-            .filter_map(|(i, v)| v.filter(|v| v.is_finite()).map(|v| ((i + 1) as f64, v)))
-            .collect();
+            .filter_map(|(i, v)| {
+                v.filter(|v| v.is_finite()).map(|v| {
+                    (
+                        ((i + 1) as f64, v),
+                        decisions.get(i).copied().unwrap_or(Decision::Accept),
+                    )
+                })
+            })
+            .unzip();
         let lo = points.iter().map(|p| p.1).fold(mean - 4.0 * sd, f64::min);
         let hi = points.iter().map(|p| p.1).fold(mean + 4.0 * sd, f64::max);
         Some(LeveyJennings {
@@ -36,6 +55,7 @@ impl LeveyJennings {
             mean,
             sd,
             points,
+            decisions,
             runs: values.len().max(1),
             y_min: lo,
             y_max: hi,
@@ -56,12 +76,19 @@ mod tests {
 
     #[test]
     fn lines_and_range() {
-        let lj =
-            LeveyJennings::new("GLU N", 100.0, 2.0, &[Some(101.0), None, Some(111.0)]).unwrap();
+        let lj = LeveyJennings::new(
+            "GLU N",
+            100.0,
+            2.0,
+            &[Some(101.0), None, Some(111.0)],
+            &[Decision::Accept, Decision::Accept, Decision::Reject],
+        )
+        .unwrap();
         assert_eq!(lj.points, vec![(1.0, 101.0), (3.0, 111.0)]);
         assert_eq!(lj.sd_lines()[0], (-3, 94.0));
         assert_eq!(lj.y_min, 92.0);
         assert_eq!(lj.y_max, 111.0);
-        assert!(LeveyJennings::new("x", 1.0, 0.0, &[]).is_none());
+        assert_eq!(lj.decisions, vec![Decision::Accept, Decision::Reject]);
+        assert!(LeveyJennings::new("x", 1.0, 0.0, &[], &[]).is_none());
     }
 }

@@ -7,6 +7,7 @@ use plotters::prelude::*;
 use plotters_canvas::CanvasBackend;
 
 use crate::engine::charts::LeveyJennings;
+use crate::engine::qc::Decision;
 
 /// A Levey–Jennings chart of one control level.
 #[component]
@@ -27,6 +28,7 @@ pub fn LeveyJenningsChart(
         <figure class="chart">
             <figcaption>{title}</figcaption>
             <canvas node_ref=canvas width="720" height="240" data-testid="lj-chart"></canvas>
+            <p class="legend muted">"● accepted run · ○ warning · ✕ rejected run"</p>
         </figure>
     }
 }
@@ -37,7 +39,7 @@ fn draw(el: web_sys::HtmlCanvasElement, s: &LeveyJennings) -> Result<(), String>
     root.fill(&WHITE).map_err(|e| e.to_string())?;
     let mut chart = ChartBuilder::on(&root)
         .margin(8)
-        .x_label_area_size(24)
+        .x_label_area_size(36)
         .y_label_area_size(56)
         .build_cartesian_2d(0.0..(s.runs as f64 + 1.0), s.y_min..s.y_max)
         .map_err(|e| e.to_string())?;
@@ -69,9 +71,22 @@ fn draw(el: web_sys::HtmlCanvasElement, s: &LeveyJennings) -> Result<(), String>
             ink.stroke_width(1),
         ))
         .map_err(|e| e.to_string())?;
-    chart
-        .draw_series(s.points.iter().map(|&p| Circle::new(p, 3, ink.filled())))
+    // Accepted runs: filled circles; warnings: hollow amber circles; rejections: red
+    // crosses (shape as well as colour).
+    let amber = RGBColor(200, 130, 0);
+    let red = RGBColor(190, 30, 30);
+    for (&p, d) in s.points.iter().zip(&s.decisions) {
+        match d {
+            Decision::Accept => chart.draw_series(std::iter::once(Circle::new(p, 3, ink.filled()))),
+            Decision::Warning => {
+                chart.draw_series(std::iter::once(Circle::new(p, 4, amber.stroke_width(2))))
+            }
+            Decision::Reject => {
+                chart.draw_series(std::iter::once(Cross::new(p, 5, red.stroke_width(2))))
+            }
+        }
         .map_err(|e| e.to_string())?;
+    }
     root.present().map_err(|e| e.to_string())?;
     Ok(())
 }

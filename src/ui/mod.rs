@@ -520,6 +520,10 @@ fn ControlCharts(
                 .iter()
                 .flat_map(|t| {
                     let h = l.control_history(&t.meta.id);
+                    let decisions: Vec<crate::engine::qc::Decision> =
+                        crate::engine::qc::evaluate(&h.targets, &h.values, &t.qc_rules)
+                            .map(|v| v.iter().map(|r| r.decision).collect())
+                            .unwrap_or_default();
                     (0..h.levels.len())
                         .filter_map(|k| {
                             let values: Vec<Option<f64>> =
@@ -529,6 +533,7 @@ fn ControlCharts(
                                 h.targets[k].mean,
                                 h.targets[k].sd,
                                 &values,
+                                &decisions,
                             )
                         })
                         .collect::<Vec<_>>()
