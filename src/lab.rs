@@ -247,6 +247,79 @@ fn merge_records<T: Record + Clone + PartialEq>(ours: &mut Vec<T>, incoming: &[T
     count
 }
 
+/// What kind of instrument log entry.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum InstrumentEvent {
+    /// Reaction cell / incubator temperature, °C.
+    TemperatureCheck,
+    /// Photometer check: water or reagent blank, or an absorbance standard.
+    PhotometerCheck,
+    Maintenance,
+    LampChange,
+    ServiceVisit,
+    Other,
+}
+
+impl InstrumentEvent {
+    pub const ALL: [InstrumentEvent; 6] = [
+        InstrumentEvent::TemperatureCheck,
+        InstrumentEvent::PhotometerCheck,
+        InstrumentEvent::Maintenance,
+        InstrumentEvent::LampChange,
+        InstrumentEvent::ServiceVisit,
+        InstrumentEvent::Other,
+    ];
+
+    pub fn code(self) -> &'static str {
+        match self {
+            InstrumentEvent::TemperatureCheck => "temperature-check",
+            InstrumentEvent::PhotometerCheck => "photometer-check",
+            InstrumentEvent::Maintenance => "maintenance",
+            InstrumentEvent::LampChange => "lamp-change",
+            InstrumentEvent::ServiceVisit => "service-visit",
+            InstrumentEvent::Other => "other",
+        }
+    }
+
+    pub fn words(self) -> &'static str {
+        match self {
+            InstrumentEvent::TemperatureCheck => "temperature check (°C)",
+            InstrumentEvent::PhotometerCheck => "photometer check (absorbance)",
+            InstrumentEvent::Maintenance => "maintenance",
+            InstrumentEvent::LampChange => "lamp change (recalibrate the tests)",
+            InstrumentEvent::ServiceVisit => "service visit",
+            InstrumentEvent::Other => "other",
+        }
+    }
+
+    pub fn from_code(s: &str) -> Option<InstrumentEvent> {
+        InstrumentEvent::ALL.into_iter().find(|e| e.code() == s)
+    }
+}
+
+/// One entry in the instrument log.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct InstrumentEntry {
+    pub meta: RecordMeta,
+    pub at: DateTime<Utc>,
+    pub event: InstrumentEvent,
+    /// The reading, for checks.
+    #[serde(default)]
+    pub value: Option<f64>,
+    #[serde(default)]
+    pub note: String,
+}
+
+/// Reaction temperature limits: 37 ± 0.5 °C unless the lab sets its own (common
+/// practice; use the analyzer maker's tolerance).
+pub fn default_temperature_limits() -> Limits {
+    Limits {
+        low: Some(36.5),
+        high: Some(37.5),
+    }
+}
+
 /// Everything one lab keeps.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Lab {
@@ -265,6 +338,10 @@ pub struct Lab {
     pub materials: Vec<MaterialRecord>,
     #[serde(default)]
     pub calibrations: Vec<CalibrationRecord>,
+    #[serde(default)]
+    pub instrument_log: Vec<InstrumentEntry>,
+    #[serde(default = "default_temperature_limits")]
+    pub temperature_limits: Limits,
 }
 
 impl Lab {
@@ -279,6 +356,8 @@ impl Lab {
             control_runs: Vec::new(),
             materials: Vec::new(),
             calibrations: Vec::new(),
+            instrument_log: Vec::new(),
+            temperature_limits: default_temperature_limits(),
         }
     }
 
@@ -345,6 +424,10 @@ impl Lab {
         for m in &mut self.materials {
             meta(&mut m.meta);
             m.stability.shift_days(days);
+        }
+        for e in &mut self.instrument_log {
+            meta(&mut e.meta);
+            e.at += d;
         }
     }
 

@@ -6,6 +6,7 @@
 
 mod calibration;
 mod chart;
+mod instrument;
 mod materials;
 mod runs;
 mod setup;
@@ -45,17 +46,19 @@ pub enum View {
     Runs,
     Charts,
     Materials,
+    Instrument,
     Records,
     Setup,
 }
 
 impl View {
-    pub const ALL: [View; 7] = [
+    pub const ALL: [View; 8] = [
         View::Today,
         View::Calibration,
         View::Runs,
         View::Charts,
         View::Materials,
+        View::Instrument,
         View::Records,
         View::Setup,
     ];
@@ -68,6 +71,7 @@ impl View {
             View::Runs => "QC runs",
             View::Charts => "Control charts",
             View::Materials => "Materials",
+            View::Instrument => "Instrument log",
             View::Records => "Records",
             View::Setup => "Set-up",
         }
@@ -81,6 +85,7 @@ impl View {
             View::Runs => "runs",
             View::Charts => "charts",
             View::Materials => "materials",
+            View::Instrument => "instrument",
             View::Records => "records",
             View::Setup => "setup",
         }
@@ -207,6 +212,9 @@ pub fn App() -> impl IntoView {
             </ViewPanel>
             <ViewPanel view=View::Materials active=active>
                 <materials::MaterialsView lab=lab save=save technician=technician />
+            </ViewPanel>
+            <ViewPanel view=View::Instrument active=active>
+                <instrument::InstrumentView lab=lab save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Records active=active>
                 <RecordsPanel lab=lab set_lab=set_lab set_problem=set_problem />
@@ -412,6 +420,21 @@ fn TodayBoard(
                     })
                     .collect();
                 let no_attention = attention.is_empty();
+                let temperature = l
+                    .instrument_log
+                    .iter()
+                    .filter(|e| e.event == crate::lab::InstrumentEvent::TemperatureCheck)
+                    .filter(|e| e.at.with_timezone(&Local).date_naive() == today)
+                    .max_by_key(|e| e.at)
+                    .and_then(|e| e.value)
+                    .map_or("No temperature check recorded today: check the reaction temperature first (Instrument log).".to_string(), |v| {
+                        let out = crate::engine::readings::flag(v, l.temperature_limits, Default::default()).is_some();
+                        if out {
+                            format!("Reaction temperature today: {v} °C, outside the limits: do not run tests until corrected.")
+                        } else {
+                            format!("Reaction temperature today: {v} °C, within the limits.")
+                        }
+                    });
                 let print = |_| {
                     if let Some(w) = web_sys::window() {
                         let _ = w.print();
@@ -423,6 +446,7 @@ fn TodayBoard(
                     </p>
                     <section class="card wide">
                         <h3>{format!("Tests — {}", today.format("%Y-%m-%d"))}</h3>
+                        <p data-testid="today-temperature">{temperature}</p>
                         <table data-testid="today-tests">
                             <thead><tr><th>"Test"</th><th>"Calibration in use"</th><th>"Latest QC run"</th><th>"Before patient samples"</th></tr></thead>
                             <tbody>{tests}</tbody>

@@ -13,7 +13,7 @@ test("the single file renders the app shell from file://", async () => {
     assert.ok(page.url().startsWith("file://"), page.url());
     const views = await page.locator("main > section.view").evaluateAll((els) =>
       els.map((e) => e.dataset.testid));
-    for (const v of ["today", "calibration", "runs", "charts", "materials", "records", "setup"]) {
+    for (const v of ["today", "calibration", "runs", "charts", "materials", "instrument", "records", "setup"]) {
       assert.ok(views.includes(`view-${v}`), `view ${v} missing from <main>: ${views}`);
     }
     // Navigation shows one view at a time.

@@ -1,0 +1,124 @@
+//! The instrument log: temperature and photometer checks, maintenance, lamp changes and
+//! service visits, newest first, each with who and when; a temperature outside the
+//! lab's limits is flagged.
+
+use chrono::Local;
+use leptos::prelude::*;
+
+use crate::engine::readings::{flag, Limits, ResultFlag};
+use crate::entry;
+use crate::lab::{InstrumentEntry, InstrumentEvent, Lab};
+
+#[component]
+pub fn InstrumentView(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+    /// Saves a changed lab.
+    save: Callback<Lab>,
+    /// The technician's initials.
+    technician: ReadSignal<String>,
+) -> impl IntoView {
+    let (event, set_event) = signal(InstrumentEvent::TemperatureCheck);
+    let (value, set_value) = signal(String::new());
+    let (note, set_note) = signal(String::new());
+    let (message, set_message) = signal::<Option<String>>(None);
+    let rows = move || {
+        lab.with(|l| {
+            let Some(l) = l.as_ref().filter(|l| !l.instrument_log.is_empty()) else {
+                return view! { <p class="empty">"No instrument checks or maintenance recorded yet."</p> }.into_any();
+            };
+            let mut entries: Vec<&InstrumentEntry> = l.instrument_log.iter().collect();
+            entries.sort_by_key(|e| std::cmp::Reverse(e.at));
+            let limits = l.temperature_limits;
+            view! {
+                <table>
+                    <thead><tr><th>"When"</th><th>"By"</th><th>"What"</th><th>"Reading"</th><th>"Note"</th></tr></thead>
+                    <tbody>
+                        {entries.into_iter().map(|e| entry_row(e, limits)).collect_view()}
+                    </tbody>
+                </table>
+            }
+            .into_any()
+        })
+    };
+    let add = move |_| {
+        let (meta, now) = match super::new_record(technician) {
+            Ok(m) => m,
+            Err(e) => return set_message.set(Some(e)),
+        };
+        let value = match entry::numbers(&value.get_untracked(), "reading") {
+            Ok(v) if v.len() <= 1 => v.first().copied(),
+            Ok(_) => return set_message.set(Some("reading: one number only".into())),
+            Err(e) => return set_message.set(Some(e)),
+        };
+        let event = event.get_untracked();
+        if event == InstrumentEvent::TemperatureCheck && value.is_none() {
+            return set_message.set(Some("reading: give the temperature in °C".into()));
+        }
+        let mut changed = lab.get_untracked().unwrap_or_else(|| Lab::empty("My lab"));
+        changed.instrument_log.push(InstrumentEntry {
+            meta,
+            at: now,
+            event,
+            value,
+            note: note.get_untracked().trim().to_string(),
+        });
+        let limits = changed.temperature_limits;
+        save.run(changed);
+        let outside = event == InstrumentEvent::TemperatureCheck
+            && value.is_some_and(|v| flag(v, limits, Limits::default()).is_some());
+        set_message.set(Some(if outside {
+            "recorded. The temperature is outside the limits: do not run tests until it is corrected.".into()
+        } else {
+            "recorded.".into()
+        }));
+    };
+    view! {
+        <section class="card wide">
+            <div class="form grid">
+                <label>
+                    "What "
+                    <select data-testid="instrument-event" on:change=move |ev| {
+                        if let Some(e) = InstrumentEvent::from_code(&event_target_value(&ev)) {
+                            set_event.set(e);
+                        }
+                    }>
+                        {InstrumentEvent::ALL.into_iter().map(|e| view! { <option value=e.code()>{e.words()}</option> }).collect_view()}
+                    </select>
+                </label>
+                <label>"Reading " <input size="8" data-testid="instrument-value" on:input=move |ev| set_value.set(event_target_value(&ev)) /></label>
+                <label>"Note " <input size="40" data-testid="instrument-note" on:input=move |ev| set_note.set(event_target_value(&ev)) /></label>
+                <button data-testid="add-instrument-entry" on:click=add>"Record"</button>
+                {move || message.get().map(|m| view! { <p class="outcome" data-testid="instrument-message">{m}</p> })}
+            </div>
+            {rows}
+        </section>
+    }
+}
+
+fn entry_row(e: &InstrumentEntry, limits: Limits) -> impl IntoView {
+    let out = e.event == InstrumentEvent::TemperatureCheck
+        && e.value
+            .is_some_and(|v| flag(v, limits, Limits::default()).is_some());
+    let reading = match (e.value, e.event) {
+        (Some(v), InstrumentEvent::TemperatureCheck) => {
+            let side = match e.value.and_then(|v| flag(v, limits, Limits::default())) {
+                Some(ResultFlag::Low | ResultFlag::CriticalLow) => " (too low)",
+                Some(ResultFlag::High | ResultFlag::CriticalHigh) => " (too high)",
+                None => "",
+            };
+            format!("{v} °C{side}")
+        }
+        (Some(v), _) => v.to_string(),
+        (None, _) => String::new(),
+    };
+    view! {
+        <tr class:state-expired=out data-testid="instrument-row">
+            <td>{e.at.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()}</td>
+            <td>{e.meta.by.clone()}</td>
+            <td>{e.event.words()}</td>
+            <td>{reading}</td>
+            <td>{e.note.clone()}</td>
+        </tr>
+    }
+}
