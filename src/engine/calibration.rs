@@ -954,13 +954,12 @@ fn termination_words(t: lm::Termination) -> &'static str {
 /// signals, c where the signal crosses half-way (log-interpolated), b from the
 /// logit-log regression of the points in between.
 fn logistic_start(x: &[f64], y: &[f64]) -> [f64; 4] {
-    let pts = average_replicates(
+    let mut pts = average_replicates(
         &x.iter()
             .zip(y)
             .map(|(&conc, &signal)| CalPoint { conc, signal })
             .collect::<Vec<_>>(),
     );
-    let mut pts = pts;
     pts.sort_by(|p, q| p.conc.total_cmp(&q.conc));
     let lo = pts[0].signal;
     let hi = pts[pts.len() - 1].signal;
