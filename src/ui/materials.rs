@@ -44,13 +44,15 @@ pub fn MaterialsView(
     save: Callback<Lab>,
     /// The technician's initials.
     technician: ReadSignal<String>,
+    /// The current time, ticking.
+    clock: ReadSignal<chrono::DateTime<Utc>>,
 ) -> impl IntoView {
     let table = move || {
+        let now = clock.get();
         lab.with(|l| {
             let Some(l) = l.as_ref().filter(|l| !l.materials.is_empty()) else {
                 return view! { <p class="empty">"No reagents, calibrators or controls in use."</p> }.into_any();
             };
-            let now = Utc::now();
             let rows = l
                 .materials
                 .iter()
@@ -89,8 +91,8 @@ pub fn MaterialsView(
             {table}
             <NewMaterial lab=lab save=save technician=technician />
             <p class="muted">
-                "The time left counts from when this page was drawn; switch views to refresh it. \
-                 The maker's instructions for use decide every stability."
+                "The time left is brought up to date every 30 seconds. The maker's instructions \
+                 for use decide every stability."
             </p>
         </section>
     }

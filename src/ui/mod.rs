@@ -110,6 +110,12 @@ pub fn App() -> impl IntoView {
         .unwrap_or(View::Today);
     let (active, set_active) = signal(start);
     let (technician, set_technician) = signal(store::technician());
+    // Countdowns and "today" follow the clock without a reload.
+    let (clock, set_clock) = signal(Utc::now());
+    set_interval(
+        move || set_clock.set(Utc::now()),
+        std::time::Duration::from_secs(30),
+    );
 
     let choose = move |v: View| {
         set_active.set(v);
@@ -199,7 +205,7 @@ pub fn App() -> impl IntoView {
         </nav>
         <main>
             <ViewPanel view=View::Today active=active>
-                <TodayBoard lab=lab />
+                <TodayBoard lab=lab clock=clock />
             </ViewPanel>
             <ViewPanel view=View::Calibration active=active>
                 <calibration::CalibrationView lab=lab save=save technician=technician />
@@ -211,7 +217,7 @@ pub fn App() -> impl IntoView {
                 <ControlCharts lab=lab />
             </ViewPanel>
             <ViewPanel view=View::Materials active=active>
-                <materials::MaterialsView lab=lab save=save technician=technician />
+                <materials::MaterialsView lab=lab save=save technician=technician clock=clock />
             </ViewPanel>
             <ViewPanel view=View::Instrument active=active>
                 <instrument::InstrumentView lab=lab save=save technician=technician />
@@ -387,12 +393,14 @@ const NO_LAB: &str = "No lab yet. Set up your tests, or load the demo lab from S
 fn TodayBoard(
     /// The lab being worked on.
     lab: ReadSignal<Option<Lab>>,
+    /// The current time, ticking.
+    clock: ReadSignal<chrono::DateTime<Utc>>,
 ) -> impl IntoView {
     move || {
+        let now = clock.get();
         lab.with(|l| match l {
             None => view! { <EmptyState text=NO_LAB /> }.into_any(),
             Some(l) => {
-                let now = Utc::now();
                 let today = now.with_timezone(&Local).date_naive();
                 let tests = l.tests.iter().map(|t| today_row(l, t, today)).collect_view();
                 let attention: Vec<(String, String)> = l
