@@ -37,3 +37,31 @@ test("a reconstituted control is recorded with its own and its analytes' stabili
     await context.close();
   }
 });
+
+test("the countdown moves on by itself: a material expires while the page stays open", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await page.clock.install({ time: new Date("2026-12-01T08:00:00Z") });
+    await page.reload();
+    await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached" });
+    await byTestId(page, "initials").fill("lb");
+    await byTestId(page, "initials").press("Enter");
+    await byTestId(page, "nav-materials").click();
+    await byTestId(page, "new-material").click();
+    await byTestId(page, "material-name").fill("Working reagent, on the bench");
+    await byTestId(page, "material-expiry").fill("2027-06");
+    await byTestId(page, "material-days").fill("0,5");
+    await byTestId(page, "add-material").click();
+    const row = byTestId(page, "material-row").first();
+    await row.waitFor();
+    assert.match(await row.innerText(), /12 h 0 min left.*usable/s);
+    // 11 h 45 min later, without touching the page: inside the last quarter.
+    await page.clock.runFor(11 * 3600_000 + 45 * 60_000);
+    await page.waitForFunction(() => /expiring soon/.test(document.querySelector('[data-testid="material-row"]').textContent));
+    await page.clock.runFor(30 * 60_000);
+    await page.waitForFunction(() => /expired: do not use/.test(document.querySelector('[data-testid="material-row"]').textContent));
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
