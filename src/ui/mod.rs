@@ -15,6 +15,7 @@ use chrono::{Local, Utc};
 use leptos::prelude::*;
 
 use crate::engine::charts::LeveyJennings;
+use crate::engine::qcstats::{self, ControlResult, Summary, Target, TargetSource};
 use crate::engine::stability::{self, StabilityState, WarningWindow};
 use crate::lab::Lab;
 use crate::store;
@@ -547,38 +548,106 @@ fn ControlCharts(
             let Some(l) = l else {
                 return view! { <EmptyState text=NO_LAB /> }.into_any();
             };
-            let charts: Vec<LeveyJennings> = l
-                .tests
-                .iter()
-                .flat_map(|t| {
-                    let h = l.control_history(&t.meta.id);
-                    let decisions: Vec<crate::engine::qc::Decision> =
-                        crate::engine::qc::evaluate(&h.targets, &h.values, &t.qc_rules)
-                            .map(|v| v.iter().map(|r| r.decision).collect())
-                            .unwrap_or_default();
-                    (0..h.levels.len())
-                        .filter_map(|k| {
-                            let values: Vec<Option<f64>> =
-                                h.values.iter().map(|run| run[k]).collect();
-                            LeveyJennings::new(
-                                &format!("{} {} ({})", t.code, h.levels[k].name, t.unit),
-                                h.targets[k].mean,
-                                h.targets[k].sd,
-                                &values,
-                                &decisions,
-                            )
+            let mut panels = Vec::new();
+            for t in &l.tests {
+                let h = l.control_history(&t.meta.id);
+                let decisions: Vec<crate::engine::qc::Decision> =
+                    crate::engine::qc::evaluate(&h.targets, &h.values, &t.qc_rules)
+                        .map(|v| v.iter().map(|r| r.decision).collect())
+                        .unwrap_or_default();
+                for k in 0..h.levels.len() {
+                    let values: Vec<Option<f64>> = h.values.iter().map(|run| run[k]).collect();
+                    let Some(series) = LeveyJennings::new(
+                        &format!("{} {} ({})", t.code, h.levels[k].name, t.unit),
+                        h.targets[k].mean,
+                        h.targets[k].sd,
+                        &values,
+                        &decisions,
+                    ) else {
+                        continue;
+                    };
+                    let results: Vec<ControlResult> = h
+                        .runs
+                        .iter()
+                        .zip(&values)
+                        .zip(&decisions)
+                        .filter_map(|((run, v), d)| {
+                            v.map(|value| ControlResult {
+                                at: run.run_at,
+                                value,
+                                run_rejected: *d == crate::engine::qc::Decision::Reject,
+                                excluded: false,
+                            })
                         })
-                        .collect::<Vec<_>>()
-                })
-                .collect();
-            if charts.is_empty() {
+                        .collect();
+                    panels.push((series, level_stats(&results, h.targets[k], &t.unit)));
+                }
+            }
+            if panels.is_empty() {
                 return view! { <EmptyState text="No control results to chart yet." /> }.into_any();
             }
-            charts
+            panels
                 .into_iter()
-                .map(|series| view! { <chart::LeveyJenningsChart series=series /> })
+                .map(|(series, stats)| {
+                    view! {
+                        <div class="chart-panel">
+                            <chart::LeveyJenningsChart series=series />
+                            {stats}
+                        </div>
+                    }
+                })
                 .collect_view()
                 .into_any()
         })
+    }
+}
+
+/// A level's statistics for the review: this month and all results that count (not
+/// from rejected runs), and whether the lab's own target is available yet.
+fn level_stats(
+    results: &[ControlResult],
+    insert: crate::engine::qc::LevelTarget,
+    unit: &str,
+) -> impl IntoView {
+    let line = |label: &str, s: Option<Summary>| {
+        let text = match s {
+            None => "no results".to_string(),
+            Some(s) => format!(
+                "n {}, mean {:.3}, SD {}, CV {}",
+                s.n,
+                s.mean,
+                s.sd.map_or("–".into(), |v| format!("{v:.3}")),
+                s.cv_pct.map_or("–".into(), |v| format!("{v:.1} %"))
+            ),
+        };
+        view! { <tr><td>{label.to_string()}</td><td>{text}</td></tr> }
+    };
+    let month = Local::now().format("%Y-%m").to_string();
+    let this_month = qcstats::by_month(results, &Local)
+        .into_iter()
+        .find(|(m, _)| *m == month)
+        .map(|(_, s)| s);
+    let target = match qcstats::choose_target(Some(insert), results) {
+        Some(Target { source: TargetSource::Lab { n }, mean, sd }) => format!(
+            "the lab's own target is available from {n} accepted results: mean {mean:.3}, SD {sd:.3} {unit} \
+             (in use: the insert's {} ± {})",
+            insert.mean, insert.sd
+        ),
+        Some(Target { source: TargetSource::Insert { n }, .. }) => format!(
+            "provisional target from the insert ({} ± {} {unit}); {n} of {} accepted results for the lab's own",
+            insert.mean,
+            insert.sd,
+            qcstats::MIN_RESULTS_FOR_LAB_TARGET
+        ),
+        None => String::new(),
+    };
+    view! {
+        <table class="stats" data-testid="level-stats">
+            <tbody>
+                {line(&format!("This month ({month})"), this_month)}
+                {line("All accepted", qcstats::cumulative(results))}
+                <tr><td>"Target"</td><td>{target}</td></tr>
+            </tbody>
+        </table>
     }
 }

@@ -70,6 +70,11 @@ test("the demo lab loads from the embedded file and draws control charts", async
     return n;
   });
   assert.ok(inked > 500, `only ${inked} inked pixels`);
+  // Statistics beside each chart: the demo has 26 runs; those of rejected runs do not
+  // count, and 20 accepted results make the lab's own target available.
+  const stats = await byTestId(page, "level-stats").first().innerText();
+  assert.match(stats, /All accepted\s+n (2[0-5]),/);
+  assert.match(stats, /lab's own target is available/);
   assert.deepEqual(problems, []);
   await context.close();
   // The demo lab is still there after a restart.
