@@ -92,3 +92,61 @@ mod tests {
         assert!(LeveyJennings::new("x", 1.0, 0.0, &[], &[]).is_none());
     }
 }
+
+/// A trend of one quantity over successive calibrations (reagent blank absorbance,
+/// sensitivity), with the acceptance range when the lab set one.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Trend {
+    pub title: String,
+    /// (calibration number from 1, value).
+    pub points: Vec<(f64, f64)>,
+    pub range: Option<(f64, f64)>,
+    pub y_min: f64,
+    pub y_max: f64,
+}
+
+impl Trend {
+    /// `None` with fewer than two values (no trend to show).
+    pub fn new(title: &str, values: &[f64], range: Option<(f64, f64)>) -> Option<Trend> {
+        let points: Vec<(f64, f64)> = values
+            .iter()
+            .enumerate()
+            .filter(|(_, v)| v.is_finite())
+            .map(|(i, &v)| ((i + 1) as f64, v))
+            .collect();
+        if points.len() < 2 {
+            return None;
+        }
+        let mut lo = points.iter().map(|p| p.1).fold(f64::INFINITY, f64::min);
+        let mut hi = points.iter().map(|p| p.1).fold(f64::NEG_INFINITY, f64::max);
+        if let Some((a, b)) = range {
+            lo = lo.min(a);
+            hi = hi.max(b);
+        }
+        let pad = if hi > lo {
+            0.1 * (hi - lo)
+        } else {
+            0.1 * hi.abs().max(1e-3)
+        };
+        Some(Trend {
+            title: title.to_string(),
+            points,
+            range,
+            y_min: lo - pad,
+            y_max: hi + pad,
+        })
+    }
+}
+
+#[cfg(test)]
+mod trend_tests {
+    use super::*;
+
+    #[test]
+    fn trend_needs_two_points_and_shows_the_range() {
+        assert!(Trend::new("blank", &[0.04], None).is_none());
+        let t = Trend::new("blank", &[0.040, 0.050], Some((0.0, 0.08))).unwrap();
+        assert_eq!(t.points, vec![(1.0, 0.040), (2.0, 0.050)]);
+        assert!(t.y_min < 0.0 && t.y_max > 0.08);
+    }
+}

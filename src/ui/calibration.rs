@@ -6,6 +6,7 @@ use leptos::prelude::*;
 
 use crate::engine::acceptance::{self, CalibrationReadings, Outcome, Verdict};
 use crate::engine::calibration::{self, Fit, ModelKind, ReplicateUse, Weighting};
+use crate::engine::charts::Trend;
 use crate::engine::qcstats::summarize;
 use crate::entry;
 use crate::lab::{CalibrationRecord, CalibratorReading, Lab, TestSetup};
@@ -102,6 +103,28 @@ fn TestCalibration(
         })
         .collect_view();
     let empty = history.is_empty();
+    let blanks: Vec<f64> = history
+        .iter()
+        .map(|c| summarize(&c.blank).map_or(f64::NAN, |s| s.mean))
+        .collect();
+    let blank_range = test
+        .acceptance
+        .blank_absorbance
+        .map(|c| (c.limit.low, c.limit.high));
+    let sensitivities: Vec<f64> = history
+        .iter()
+        .map(|c| acceptance::sensitivity(&c.curve).0)
+        .collect();
+    let what = history
+        .first()
+        .map_or("sensitivity", |c| acceptance::sensitivity(&c.curve).1);
+    let trends: Vec<Trend> = [
+        Trend::new("Reagent blank absorbance", &blanks, blank_range),
+        Trend::new(&format!("Sensitivity ({what})"), &sensitivities, None),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
     view! {
         <section class="card wide" data-testid=format!("calibration-{}", test.code)>
             <h3>{format!("{} {} ({} nm, {})", test.code, test.name, test.wavelength_nm, test.unit)}</h3>
@@ -119,6 +142,9 @@ fn TestCalibration(
                     <tbody>{rows.clone()}</tbody>
                 </table>
             </Show>
+            <div class="trends">
+                {trends.into_iter().map(|t| view! { <super::chart::TrendChart series=t /> }).collect_view()}
+            </div>
             <NewCalibration lab=lab.clone() test=test.clone() save=save technician=technician />
         </section>
     }

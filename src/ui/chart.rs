@@ -6,7 +6,7 @@ use leptos::prelude::*;
 use plotters::prelude::*;
 use plotters_canvas::CanvasBackend;
 
-use crate::engine::charts::LeveyJennings;
+use crate::engine::charts::{LeveyJennings, Trend};
 use crate::engine::qc::Decision;
 
 /// A Levey–Jennings chart of one control level.
@@ -87,6 +87,70 @@ fn draw(el: web_sys::HtmlCanvasElement, s: &LeveyJennings) -> Result<(), String>
         }
         .map_err(|e| e.to_string())?;
     }
+    root.present().map_err(|e| e.to_string())?;
+    Ok(())
+}
+
+/// A small line chart of a calibration trend.
+#[component]
+pub fn TrendChart(
+    /// The series to draw.
+    series: Trend,
+) -> impl IntoView {
+    let canvas = NodeRef::<Canvas>::new();
+    let title = series.title.clone();
+    Effect::new(move |_| {
+        if let Some(el) = canvas.get() {
+            if let Err(e) = draw_trend(el, &series) {
+                leptos::logging::warn!("trend not drawn: {e}");
+            }
+        }
+    });
+    view! {
+        <figure class="chart trend">
+            <figcaption>{title}</figcaption>
+            <canvas node_ref=canvas width="360" height="160" data-testid="trend-chart"></canvas>
+        </figure>
+    }
+}
+
+fn draw_trend(el: web_sys::HtmlCanvasElement, s: &Trend) -> Result<(), String> {
+    let backend = CanvasBackend::with_canvas_object(el).ok_or("no canvas context")?;
+    let root = backend.into_drawing_area();
+    root.fill(&WHITE).map_err(|e| e.to_string())?;
+    let n = s.points.len() as f64;
+    let mut chart = ChartBuilder::on(&root)
+        .margin(6)
+        .x_label_area_size(20)
+        .y_label_area_size(56)
+        .build_cartesian_2d(0.5..(n + 0.5), s.y_min..s.y_max)
+        .map_err(|e| e.to_string())?;
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .x_labels(s.points.len().min(10))
+        .x_label_formatter(&|x| format!("{x:.0}"))
+        .y_labels(5)
+        .draw()
+        .map_err(|e| e.to_string())?;
+    if let Some((lo, hi)) = s.range {
+        let limit = RGBColor(190, 30, 30).stroke_width(1);
+        for y in [lo, hi] {
+            chart
+                .draw_series(LineSeries::new(vec![(0.5, y), (n + 0.5, y)], limit))
+                .map_err(|e| e.to_string())?;
+        }
+    }
+    let ink = RGBColor(20, 70, 140);
+    chart
+        .draw_series(LineSeries::new(
+            s.points.iter().copied(),
+            ink.stroke_width(1),
+        ))
+        .map_err(|e| e.to_string())?;
+    chart
+        .draw_series(s.points.iter().map(|&p| Circle::new(p, 3, ink.filled())))
+        .map_err(|e| e.to_string())?;
     root.present().map_err(|e| e.to_string())?;
     Ok(())
 }

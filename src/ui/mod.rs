@@ -5,7 +5,7 @@
 //! drawing through [`chart`].
 
 mod calibration;
-mod chart;
+pub(crate) mod chart;
 mod instrument;
 mod materials;
 mod runs;

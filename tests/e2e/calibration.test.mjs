@@ -12,7 +12,9 @@ test("a new glucose calibration is fitted, judged, saved and kept", async () => 
     await byTestId(page, "nav-calibration").click();
     const card = byTestId(page, "calibration-GLU");
     const before = await card.locator('[data-testid="calibration-row"]').count();
-    assert.ok(before >= 1, "the demo has earlier glucose calibrations");
+    assert.ok(before >= 2, "the demo has earlier glucose calibrations");
+    // Trends of the reagent blank and the factor over those calibrations.
+    assert.equal(await card.locator('[data-testid="trend-chart"]').count(), 2);
     await card.locator('[data-testid="new-calibration-GLU"]').click();
     // A reagent blank far too high: rejected, with the reason.
     await card.locator('[data-testid="calibration-blank"]').fill("0,130 0,131");
