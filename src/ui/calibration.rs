@@ -21,24 +21,10 @@ pub fn CalibrationView(
     /// The technician's initials.
     technician: ReadSignal<String>,
 ) -> impl IntoView {
-    move || {
-        lab.with(|l| match l {
-            None => view! { <p class="empty">{super::NO_LAB}</p> }.into_any(),
-            Some(l) if l.tests.is_empty() => {
-                view! { <p class="empty">"No tests set up yet."</p> }.into_any()
-            }
-            Some(l) => l
-                .tests
-                .iter()
-                .map(|t| {
-                    view! {
-                        <TestCalibration lab=l.clone() test=t.clone() save=save technician=technician />
-                    }
-                })
-                .collect_view()
-                .into_any(),
-        })
-    }
+    super::per_test(lab, move |l, t| {
+        view! { <TestCalibration lab=l.clone() test=t.clone() save=save technician=technician /> }
+            .into_any()
+    })
 }
 
 fn outcome_words(o: Outcome) -> &'static str {

@@ -9,14 +9,15 @@ use plotters_canvas::CanvasBackend;
 use crate::engine::charts::{LeveyJennings, Trend};
 use crate::engine::qc::Decision;
 
-/// A Levey–Jennings chart of one control level.
-#[component]
-pub fn LeveyJenningsChart(
-    /// The series to draw.
-    series: LeveyJennings,
+/// A canvas with a caption, drawn by `draw` once it is in the page.
+fn canvas_figure<S: 'static>(
+    series: S,
+    title: String,
+    size: (u32, u32),
+    testid: &'static str,
+    draw: fn(web_sys::HtmlCanvasElement, &S) -> Result<(), String>,
 ) -> impl IntoView {
     let canvas = NodeRef::<Canvas>::new();
-    let title = series.title.clone();
     Effect::new(move |_| {
         if let Some(el) = canvas.get() {
             if let Err(e) = draw(el, &series) {
@@ -25,9 +26,21 @@ pub fn LeveyJenningsChart(
         }
     });
     view! {
+        <figcaption>{title}</figcaption>
+        <canvas node_ref=canvas width=size.0 height=size.1 data-testid=testid></canvas>
+    }
+}
+
+/// A Levey–Jennings chart of one control level.
+#[component]
+pub fn LeveyJenningsChart(
+    /// The series to draw.
+    series: LeveyJennings,
+) -> impl IntoView {
+    let title = series.title.clone();
+    view! {
         <figure class="chart">
-            <figcaption>{title}</figcaption>
-            <canvas node_ref=canvas width="720" height="240" data-testid="lj-chart"></canvas>
+            {canvas_figure(series, title, (720, 240), "lj-chart", draw)}
             <p class="legend muted">"● accepted run · ○ warning · ✕ rejected run"</p>
         </figure>
     }
@@ -97,20 +110,9 @@ pub fn TrendChart(
     /// The series to draw.
     series: Trend,
 ) -> impl IntoView {
-    let canvas = NodeRef::<Canvas>::new();
     let title = series.title.clone();
-    Effect::new(move |_| {
-        if let Some(el) = canvas.get() {
-            if let Err(e) = draw_trend(el, &series) {
-                leptos::logging::warn!("trend not drawn: {e}");
-            }
-        }
-    });
     view! {
-        <figure class="chart trend">
-            <figcaption>{title}</figcaption>
-            <canvas node_ref=canvas width="360" height="160" data-testid="trend-chart"></canvas>
-        </figure>
+        <figure class="chart trend">{canvas_figure(series, title, (360, 160), "trend-chart", draw_trend)}</figure>
     }
 }
 

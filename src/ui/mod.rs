@@ -36,6 +36,23 @@ pub(super) fn new_record(
     ))
 }
 
+/// One card per test, or the empty state: the shape of the Calibration and QC runs
+/// views.
+pub(super) fn per_test(
+    lab: ReadSignal<Option<Lab>>,
+    card: impl Fn(&Lab, &crate::lab::TestSetup) -> AnyView + Send + Sync + 'static,
+) -> impl IntoView {
+    move || {
+        lab.with(|l| match l {
+            None => view! { <EmptyState text=NO_LAB /> }.into_any(),
+            Some(l) if l.tests.is_empty() => {
+                view! { <EmptyState text="No tests set up yet: add them in Set-up." /> }.into_any()
+            }
+            Some(l) => l.tests.iter().map(|t| card(l, t)).collect_view().into_any(),
+        })
+    }
+}
+
 /// The demo lab, embedded at build time from `demo-data/`.
 pub const DEMO_LAB: &str = include_str!("../../demo-data/demo-lab.json");
 

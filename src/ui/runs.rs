@@ -20,18 +20,10 @@ pub fn RunsView(
     /// The technician's initials.
     technician: ReadSignal<String>,
 ) -> impl IntoView {
-    move || {
-        lab.with(|l| match l {
-            None => view! { <p class="empty">{super::NO_LAB}</p> }.into_any(),
-            Some(l) if l.tests.is_empty() => view! { <p class="empty">"No tests set up yet."</p> }.into_any(),
-            Some(l) => l
-                .tests
-                .iter()
-                .map(|t| view! { <TestRuns lab=l.clone() test=t.clone() save=save technician=technician /> })
-                .collect_view()
-                .into_any(),
-        })
-    }
+    super::per_test(lab, move |l, t| {
+        view! { <TestRuns lab=l.clone() test=t.clone() save=save technician=technician /> }
+            .into_any()
+    })
 }
 
 pub(super) fn decision_words(d: Decision) -> &'static str {
