@@ -46,8 +46,23 @@ pub fn SetupView(
             })
         })
     };
+    let rename = move |ev: leptos::ev::Event| {
+        let name = event_target_value(&ev).trim().to_string();
+        if name.is_empty() {
+            return;
+        }
+        let mut changed = lab.get_untracked().unwrap_or_else(|| Lab::empty(&name));
+        changed.lab_name = name;
+        save.run(changed);
+    };
+    let lab_name = move || lab.with(|l| l.as_ref().map(|l| l.lab_name.clone()).unwrap_or_default());
     view! {
         <section class="card wide">
+            <label>
+                "Lab name "
+                <input size="40" data-testid="lab-name-input" placeholder="District hospital laboratory"
+                    prop:value=lab_name on:change=rename />
+            </label>
             <h3>"Tests"</h3>
             <ul class="setup-tests">{tests}</ul>
             <NewTest lab=lab save=save technician=technician />

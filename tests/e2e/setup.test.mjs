@@ -8,6 +8,9 @@ test("a lab sets up its first test and control level, then runs QC", async () =>
   const { context, page, problems } = await openApp(newProfile());
   try {
     await byTestId(page, "nav-setup").click();
+    await byTestId(page, "lab-name-input").fill("Rural health centre lab");
+    await byTestId(page, "lab-name-input").press("Enter");
+    assert.equal(await byTestId(page, "lab-name").innerText(), "Rural health centre lab");
     await byTestId(page, "new-test").click();
     await byTestId(page, "test-code").fill("urea");
     await byTestId(page, "test-name").fill("Urea (urease-GLDH)");
