@@ -9,6 +9,11 @@ use plotters_canvas::CanvasBackend;
 use crate::engine::charts::{LeveyJennings, Trend};
 use crate::engine::qc::Decision;
 
+/// Points and lines of the data.
+const INK: RGBColor = RGBColor(20, 70, 140);
+/// ±3 SD lines, acceptance limits and rejected runs.
+const LIMIT_RED: RGBColor = RGBColor(190, 30, 30);
+
 /// A canvas with a caption, drawn by `draw` once it is in the page.
 fn canvas_figure<S: 'static>(
     series: S,
@@ -71,13 +76,13 @@ fn draw(el: web_sys::HtmlCanvasElement, s: &LeveyJennings) -> Result<(), String>
             0 => RGBColor(30, 30, 30).stroke_width(2),
             1 => RGBColor(170, 170, 170).stroke_width(1),
             2 => RGBColor(200, 140, 0).stroke_width(1),
-            _ => RGBColor(190, 30, 30).stroke_width(1),
+            _ => LIMIT_RED.stroke_width(1),
         };
         chart
             .draw_series(LineSeries::new(vec![(0.0, y), (x_end, y)], style))
             .map_err(|e| e.to_string())?;
     }
-    let ink = RGBColor(20, 70, 140);
+    let ink = INK;
     chart
         .draw_series(LineSeries::new(
             s.points.iter().copied(),
@@ -87,7 +92,7 @@ fn draw(el: web_sys::HtmlCanvasElement, s: &LeveyJennings) -> Result<(), String>
     // Accepted runs: filled circles; warnings: hollow amber circles; rejections: red
     // crosses (shape as well as colour).
     let amber = RGBColor(200, 130, 0);
-    let red = RGBColor(190, 30, 30);
+    let red = LIMIT_RED;
     for (&p, d) in s.points.iter().zip(&s.decisions) {
         match d {
             Decision::Accept => chart.draw_series(std::iter::once(Circle::new(p, 3, ink.filled()))),
@@ -136,14 +141,14 @@ fn draw_trend(el: web_sys::HtmlCanvasElement, s: &Trend) -> Result<(), String> {
         .draw()
         .map_err(|e| e.to_string())?;
     if let Some((lo, hi)) = s.range {
-        let limit = RGBColor(190, 30, 30).stroke_width(1);
+        let limit = LIMIT_RED.stroke_width(1);
         for y in [lo, hi] {
             chart
                 .draw_series(LineSeries::new(vec![(0.5, y), (n + 0.5, y)], limit))
                 .map_err(|e| e.to_string())?;
         }
     }
-    let ink = RGBColor(20, 70, 140);
+    let ink = INK;
     chart
         .draw_series(LineSeries::new(
             s.points.iter().copied(),
