@@ -1,6 +1,6 @@
 //! The Levenberg–Marquardt core on NIST StRD nonlinear regression sets, from both of
 //! NIST's starting values. Source: NIST Statistical Reference Datasets, nonlinear
-//! least squares ("nls"), files in `../shared/reference/nist/`. Requirement: certified
+//! least squares ("nls"), files in `tests/reference/nist/`. Requirement: certified
 //! RSS to ≥ 9 correct digits, parameters to ≥ 6 (Bennett5 ≥ 5).
 
 mod common;

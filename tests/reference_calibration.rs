@@ -1,9 +1,9 @@
 //! Calibration fits against outside references:
 //! * NIST StRD linear regression "lls" sets Norris (linear) and Pontius (quadratic),
-//!   certified values in `../shared/reference/nist/`;
+//!   certified values in `tests/reference/nist/`;
 //! * numpy.polyfit on seeded random linear, weighted and quadratic calibrations;
 //! * scipy.optimize.curve_fit on the ryegrass dose–response data (Inderjit et al. 2002,
-//!   as distributed with the R package drc), `../shared/reference/dose-response/`.
+//!   as distributed with the R package drc), `tests/reference/dose-response/`.
 
 mod common;
 

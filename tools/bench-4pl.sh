@@ -3,7 +3,7 @@
 # scipy.optimize.curve_fit (timeit) in the same run, and prints the ratio.
 set -euo pipefail
 cd "$(dirname "$0")/.."
-REF="${CUVETTE_REFERENCE:-$PWD/../shared/reference}"
+REF="${CUVETTE_REFERENCE:-$PWD/tests/reference}"
 cargo bench --bench fit -- --noplot --warm-up-time 1 --measurement-time 3 fit_4pl_ryegrass >/dev/null
 ours_ns=$(python3 -c "import json;print(json.load(open('target/criterion/fit_4pl_ryegrass/new/estimates.json'))['mean']['point_estimate'])")
 scipy_ns=$(REF="$REF" python3 - <<'PY'

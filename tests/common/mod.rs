@@ -6,20 +6,13 @@ use std::io::Write;
 use std::path::PathBuf;
 use std::process::{Command, Stdio};
 
-/// `../shared/reference/` beside the checkout (CI has it there), or `CUVETTE_REFERENCE`.
+/// The published data sets the tests read: `tests/reference/` in the checkout (see
+/// its README for each file's source), or another copy named by `CUVETTE_REFERENCE`.
 pub fn reference_dir() -> PathBuf {
     if let Ok(dir) = std::env::var("CUVETTE_REFERENCE") {
         return PathBuf::from(dir);
     }
-    let here = PathBuf::from(env!("CARGO_MANIFEST_DIR"));
-    let beside = here.join("../shared/reference");
-    assert!(
-        beside.is_dir(),
-        "reference data not found at {}: put the shared reference folder beside the checkout \
-         or set CUVETTE_REFERENCE",
-        beside.display()
-    );
-    beside
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/reference")
 }
 
 /// A NIST StRD data file: starting values, certified values and the data.
