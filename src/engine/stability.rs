@@ -88,19 +88,15 @@ impl ExpiryDate {
 
     /// The same kind of label `days` later (a month label moves with its last day).
     pub fn shifted(self, days: i64) -> ExpiryDate {
-        let d = Duration::days(days);
+        let moved = |day: NaiveDate| day.checked_add_signed(Duration::try_days(days)?);
         match self {
-            ExpiryDate::Day(day) => ExpiryDate::Day(day + d),
-            ExpiryDate::Month { year, month } => match last_day_of_month(year, month) {
-                Some(last) => {
-                    let moved = last + d;
-                    ExpiryDate::Month {
-                        year: moved.year(),
-                        month: moved.month(),
-                    }
-                }
-                None => self,
-            },
+            ExpiryDate::Day(day) => moved(day).map_or(self, ExpiryDate::Day),
+            ExpiryDate::Month { year, month } => last_day_of_month(year, month)
+                .and_then(moved)
+                .map_or(self, |last| ExpiryDate::Month {
+                    year: last.year(),
+                    month: last.month(),
+                }),
         }
     }
 
@@ -177,22 +173,31 @@ pub struct Material {
 }
 
 impl Material {
-    /// Every date and time moved by `days` (for the demo lab, kept current).
-    pub fn shift_days(&mut self, days: i64) {
-        let d = Duration::days(days);
+    /// Every time moved by `by`, and the maker's expiry label by `by` in whole days
+    /// (rounded), so a material keeps its story when the demo lab is brought to today.
+    /// A time that would leave the calendar stays where it was.
+    pub fn shift_by(&mut self, by: Duration) {
+        let days = (by.num_seconds() as f64 / 86_400.0).round() as i64;
         self.expiry = self.expiry.shifted(days);
-        for t in [&mut self.opened_at, &mut self.on_board_since]
-            .into_iter()
-            .flatten()
-        {
-            *t += d;
-        }
+        let shift = |t: &mut DateTime<Utc>| *t = t.checked_add_signed(by).unwrap_or(*t);
+        self.opened_at.iter_mut().for_each(shift);
+        self.on_board_since.iter_mut().for_each(shift);
         if let Some(f) = self.frozen.as_mut() {
-            f.frozen_at += d;
-            if let Some(t) = f.thawed_at.as_mut() {
-                *t += d;
-            }
+            shift(&mut f.frozen_at);
+            f.thawed_at.iter_mut().for_each(shift);
         }
+    }
+
+    /// The moments recorded for this material: opened, loaded, frozen, thawed.
+    pub fn recorded_times(&self) -> impl Iterator<Item = DateTime<Utc>> + '_ {
+        let frozen = self
+            .frozen
+            .iter()
+            .flat_map(|f| std::iter::once(f.frozen_at).chain(f.thawed_at));
+        self.opened_at
+            .into_iter()
+            .chain(self.on_board_since)
+            .chain(frozen)
     }
 }
 

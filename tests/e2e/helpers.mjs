@@ -1,6 +1,7 @@
 // Page helpers for the end-to-end tests: Debian's Chromium, headless, a fresh profile
 // folder per test (reused across relaunches to prove persistence), dist/cuvette.html
-// opened from file://.
+// opened from file://. Every page runs on a fixed clock in a fixed time zone, so a test
+// gives the same answer at any hour and in any TZ the machine has.
 import { chromium } from "playwright-core";
 import { mkdtempSync, existsSync } from "node:fs";
 import { tmpdir } from "node:os";
@@ -20,10 +21,16 @@ const FLAGS = [
   "--disable-background-networking", "--disable-component-update", "--disable-sync",
 ];
 
+/** The instant every test starts at unless it names its own: a weekday mid-morning in
+ *  a zone three hours east of UTC. The page's clock starts there and then runs. */
+export const DEFAULT_NOW = "2026-11-27T09:30:00Z";
+export const DEFAULT_ZONE = "Africa/Nairobi";
+
 /** Launch Chromium on `profile`, open the single file (or `file`), wait for the app's
- *  <main>. `problems` collects console errors, page errors, failed requests and any
- *  request that is not file: or data: (the app must need no network). */
-export async function openApp(profile, file = singleFile) {
+ *  <main>. The page's clock starts at `now` (ISO 8601) in the IANA zone `zone`.
+ *  `problems` collects console errors, page errors, failed requests and any request
+ *  that is not file: or data: (the app must need no network). */
+export async function openApp(profile, file = singleFile, { now = DEFAULT_NOW, zone = DEFAULT_ZONE } = {}) {
   if (!existsSync(file)) {
     throw new Error(`${file} is missing: build it with trunk build --release first`);
   }
@@ -32,8 +39,10 @@ export async function openApp(profile, file = singleFile) {
     executablePath: process.env.CHROMIUM || "/usr/bin/chromium",
     headless: true,
     args: FLAGS,
+    timezoneId: zone,
     env: { ...process.env, XDG_CONFIG_HOME: xdg, XDG_CACHE_HOME: xdg },
   });
+  await context.clock.install({ time: new Date(now) });
   const page = context.pages()[0] || (await context.newPage());
   const problems = [];
   page.on("console", (msg) => {
@@ -45,8 +54,19 @@ export async function openApp(profile, file = singleFile) {
     if (!/^(file|data):/.test(req.url())) problems.push(`network request: ${req.url()}`);
   });
   await page.goto(pathToFileURL(file).href);
-  await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached", timeout: 20000 });
+  await waitReady(page);
   return { context, page, problems };
+}
+
+/** Wait until the app has opened its stores and shows the lab. */
+export async function waitReady(page) {
+  await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached", timeout: 20000 });
+  await page.waitForSelector('[data-testid=save-state]:not([data-state="opening"])', { timeout: 20000 });
+}
+
+/** Wait until every change on screen is committed ("All saved"). */
+export async function waitSaved(page) {
+  await page.waitForSelector('[data-testid=save-state][data-state="saved"]', { timeout: 20000 });
 }
 
 export const byTestId = (page, id) => page.locator(`[data-testid="${id}"]`);

@@ -2,7 +2,7 @@
 // stability; the usable-until of each, counted down by the engine.
 import { test } from "node:test";
 import assert from "node:assert/strict";
-import { openApp, newProfile, byTestId } from "./helpers.mjs";
+import { openApp, newProfile, byTestId, waitReady, waitSaved } from "./helpers.mjs";
 
 test("a reconstituted control is recorded with its own and its analytes' stability", async () => {
   const { context, page, problems } = await openApp(newProfile());
@@ -29,8 +29,10 @@ test("a reconstituted control is recorded with its own and its analytes' stabili
     assert.match(await rows.nth(0).innerText(), /Control N.*LB.*(6 d 23 h|7 d 0 h) left.*stability after opening.*usable/s);
     // Bilirubin, 2 days: 48 h left, window min(48 h, 12 h) = 12 h, so usable too.
     assert.match(await rows.nth(1).innerText(), /Bilirubin.*(1 d 23 h|2 d 0 h) left.*usable/s);
-    await page.reload();
-    await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached" });
+    await waitSaved(page);
+    await waitSaved(page);
+  await page.reload();
+    await waitReady(page);
     assert.equal(await byTestId(page, "material-row").count(), 2);
     assert.deepEqual(problems, []);
   } finally {
@@ -39,11 +41,8 @@ test("a reconstituted control is recorded with its own and its analytes' stabili
 });
 
 test("the countdown moves on by itself: a material expires while the page stays open", async () => {
-  const { context, page, problems } = await openApp(newProfile());
+  const { context, page, problems } = await openApp(newProfile(), undefined, { now: "2026-12-01T08:00:00Z" });
   try {
-    await page.clock.install({ time: new Date("2026-12-01T08:00:00Z") });
-    await page.reload();
-    await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached" });
     await byTestId(page, "initials").fill("lb");
     await byTestId(page, "initials").press("Enter");
     await byTestId(page, "nav-materials").click();

@@ -1,0 +1,57 @@
+// The bench at any hour: today's board and a new QC run with the demo lab, on a fixed
+// clock just after local midnight, late in the evening, and on the last day of a month,
+// each in a zone far from UTC. Loading the demo places its newest record a few minutes
+// before "now", so nothing is in the future and the story (this morning's rejected
+// glucose run, the thawed aliquot near its end) is the same at every hour.
+import { test } from "node:test";
+import assert from "node:assert/strict";
+import { openApp, newProfile, byTestId } from "./helpers.mjs";
+
+const CASES = [
+  // 00:30 local, UTC+14: the local date is a day ahead of UTC's.
+  { name: "early morning", now: "2026-03-09T10:30:00Z", zone: "Pacific/Kiritimati", date: "2026-03-10", time: "00:30" },
+  // 23:50 local, UTC−9 (Adak keeps summer time from 8 March): a day behind UTC.
+  { name: "late evening", now: "2026-03-11T08:50:00Z", zone: "America/Adak", date: "2026-03-10", time: "23:50" },
+  // 23:58 on 30 April, UTC+3: the next run would be in May.
+  { name: "last day of a month", now: "2026-04-30T20:58:00Z", zone: "Africa/Nairobi", date: "2026-04-30", time: "23:58" },
+];
+
+for (const c of CASES) {
+  test(`the board and a new QC run at a fixed clock: ${c.name} (${c.zone})`, async () => {
+    const { context, page, problems } = await openApp(newProfile(), undefined, { now: c.now, zone: c.zone });
+    try {
+      await byTestId(page, "nav-setup").click();
+      await byTestId(page, "load-demo").click();
+      await byTestId(page, "initials").fill("qa");
+      await byTestId(page, "initials").press("Enter");
+      await byTestId(page, "nav-today").click();
+      const board = byTestId(page, "view-today");
+      assert.match(await board.locator("h3").first().innerText(), new RegExp(c.date));
+      const glu = byTestId(page, "today-test").first();
+      // The demo's glucose run of this morning: minutes ago, today's date, rejected.
+      assert.match(await glu.innerText(), new RegExp(`GLU.*${c.date} \\d\\d:\\d\\d reject.*reject: hold patient results`, "s"));
+      assert.match(await byTestId(page, "today-materials").innerText(), /frozen aliquot.*expiring/s);
+
+      await byTestId(page, "nav-runs").click();
+      const card = byTestId(page, "runs-GLU");
+      const before = await card.locator('[data-testid="qc-run"]').count();
+      await card.locator('[data-testid="new-run-GLU"]').click();
+      await card.locator('[data-testid="run-value-0"]').fill("95");
+      await card.locator('[data-testid="run-value-1"]').fill("265");
+      await card.locator(".run-preview").waitFor();
+      await card.locator('[data-testid="save-run"]').click();
+      await page.waitForFunction(
+        (n) => document.querySelectorAll('[data-testid="runs-GLU"] [data-testid="qc-run"]').length === n,
+        before + 1,
+      );
+      // The run just saved is the newest, dated by the page's clock in the lab's zone.
+      const newest = await card.locator('[data-testid="qc-run"]').first().innerText();
+      assert.match(newest, new RegExp(`${c.date} ${c.time}.*QA`, "s"));
+      await byTestId(page, "nav-today").click();
+      assert.match(await byTestId(page, "today-test").first().innerText(), new RegExp(`GLU.*${c.date} ${c.time}`, "s"));
+      assert.deepEqual(problems, []);
+    } finally {
+      await context.close();
+    }
+  });
+}
