@@ -23,8 +23,15 @@ pub struct RecordMeta {
     pub id: String,
     pub created_at: DateTime<Utc>,
     pub changed_at: DateTime<Utc>,
-    /// Technician's initials.
+    /// Technician's initials (of who made the record).
     pub by: String,
+    /// 1 when made, one more per correction or void (see `crate::journal`).
+    #[serde(default = "first_version")]
+    pub version: u32,
+}
+
+fn first_version() -> u32 {
+    1
 }
 
 impl RecordMeta {
@@ -37,6 +44,7 @@ impl RecordMeta {
             created_at: now,
             changed_at: now,
             by: by.trim().to_uppercase(),
+            version: 1,
         }
     }
 }
@@ -205,7 +213,8 @@ record!(
     ControlLevel,
     ControlRun,
     MaterialRecord,
-    CalibrationRecord
+    CalibrationRecord,
+    InstrumentEntry
 );
 
 /// What an import did, per kind of record.
@@ -398,16 +407,20 @@ impl Lab {
             &mut self.calibrations,
             &incoming.calibrations,
         ));
+        total.add(merge_records(
+            &mut self.instrument_log,
+            &incoming.instrument_log,
+        ));
         total
     }
 
-    /// Move every date in the lab by whole days. The demo lab is moved so that its last
-    /// QC run was this morning, and its materials count down from today.
-    pub fn shift_days(&mut self, days: i64) {
-        let d = chrono::Duration::days(days);
+    /// Move every time in the lab by `by` (maker's expiry labels by the nearest whole
+    /// number of days). Ids, order and every duration between records stay as they were.
+    pub fn shift_by(&mut self, by: chrono::Duration) {
+        let shift = |t: &mut DateTime<Utc>| *t = t.checked_add_signed(by).unwrap_or(*t);
         let meta = |m: &mut RecordMeta| {
-            m.created_at += d;
-            m.changed_at += d;
+            shift(&mut m.created_at);
+            shift(&mut m.changed_at);
         };
         self.tests.iter_mut().for_each(|t| meta(&mut t.meta));
         self.control_levels
@@ -415,35 +428,116 @@ impl Lab {
             .for_each(|l| meta(&mut l.meta));
         for r in &mut self.control_runs {
             meta(&mut r.meta);
-            r.run_at += d;
+            shift(&mut r.run_at);
         }
         for c in &mut self.calibrations {
             meta(&mut c.meta);
-            c.performed_at += d;
+            shift(&mut c.performed_at);
         }
         for m in &mut self.materials {
             meta(&mut m.meta);
-            m.stability.shift_days(days);
+            m.stability.shift_by(by);
         }
         for e in &mut self.instrument_log {
             meta(&mut e.meta);
-            e.at += d;
+            shift(&mut e.at);
         }
     }
 
-    /// Shift the lab so its last activity falls on `today` (local date in `tz`).
-    pub fn bring_to<Tz: chrono::TimeZone>(&mut self, today: chrono::NaiveDate, tz: &Tz) {
-        if let Some(last) = self.last_activity() {
-            let days = (today - last.with_timezone(tz).date_naive()).num_days();
-            self.shift_days(days);
+    /// Move the lab in time so that its newest recorded moment lies `lead` before
+    /// `now`. The demo lab is brought to the present this way: nothing lands in the
+    /// future at any hour, and what is due or expiring stays as the story tells it.
+    pub fn place_before(&mut self, now: DateTime<Utc>, lead: chrono::Duration) {
+        if let Some(newest) = self.newest_time() {
+            self.shift_by(now - lead - newest);
         }
     }
 
-    /// The latest QC run or calibration time, if any.
-    pub fn last_activity(&self) -> Option<DateTime<Utc>> {
-        let runs = self.control_runs.iter().map(|r| r.run_at);
-        let cals = self.calibrations.iter().map(|c| c.performed_at);
-        runs.chain(cals).max()
+    /// The newest moment recorded anywhere in the lab: a record made or changed, a QC
+    /// run, a calibration, a material opened, loaded, frozen or thawed, a log entry.
+    pub fn newest_time(&self) -> Option<DateTime<Utc>> {
+        let metas = (self.tests.iter().map(|t| &t.meta))
+            .chain(self.control_levels.iter().map(|l| &l.meta))
+            .chain(self.control_runs.iter().map(|r| &r.meta))
+            .chain(self.calibrations.iter().map(|c| &c.meta))
+            .chain(self.materials.iter().map(|m| &m.meta))
+            .chain(self.instrument_log.iter().map(|e| &e.meta))
+            .flat_map(|m| [m.created_at, m.changed_at]);
+        let events = (self.control_runs.iter().map(|r| r.run_at))
+            .chain(self.calibrations.iter().map(|c| c.performed_at))
+            .chain(self.instrument_log.iter().map(|e| e.at))
+            .chain(
+                self.materials
+                    .iter()
+                    .flat_map(|m| m.stability.recorded_times()),
+            );
+        metas.chain(events).max()
+    }
+
+    /// Take out the record with this id, whatever its kind (a void: the journal keeps
+    /// its earlier versions).
+    pub fn remove_record(&mut self, id: &str) {
+        self.tests.retain(|r| r.meta.id != id);
+        self.control_levels.retain(|r| r.meta.id != id);
+        self.control_runs.retain(|r| r.meta.id != id);
+        self.materials.retain(|r| r.meta.id != id);
+        self.calibrations.retain(|r| r.meta.id != id);
+        self.instrument_log.retain(|r| r.meta.id != id);
+    }
+
+    /// Records holding values no lab would record (what a damaged store or an old
+    /// unchecked form could leave): (id, why). Plausible ranges, common practice:
+    /// stabilities up to 10 years, targets and results finite and below 10^7, an SD
+    /// above zero, wavelengths 200–1100 nm.
+    pub fn implausible_records(&self) -> Vec<(String, String)> {
+        const MAX_HOURS: f64 = 87_600.0;
+        let hours_ok =
+            |h: Option<f64>| h.is_none_or(|h| h.is_finite() && (0.0..=MAX_HOURS).contains(&h));
+        let value_ok = |v: f64| v.is_finite() && v.abs() < 1e7;
+        let mut out = Vec::new();
+        for l in &self.control_levels {
+            if !value_ok(l.mean) || !value_ok(l.sd) || l.sd <= 0.0 {
+                out.push((
+                    l.meta.id.clone(),
+                    format!("control level {}: mean {} and SD {}", l.name, l.mean, l.sd),
+                ));
+            }
+        }
+        for r in &self.control_runs {
+            if r.values.iter().flatten().any(|v| !value_ok(*v)) {
+                out.push((
+                    r.meta.id.clone(),
+                    "a QC run with a value out of range".into(),
+                ));
+            }
+        }
+        for m in &self.materials {
+            let st = &m.stability;
+            let frozen = st.frozen.as_ref();
+            let ok = hours_ok(st.in_use_hours)
+                && hours_ok(st.on_board_hours)
+                && hours_ok(frozen.map(|f| f.frozen_hours))
+                && hours_ok(frozen.map(|f| f.after_thaw_hours))
+                && st
+                    .analytes
+                    .iter()
+                    .all(|a| hours_ok(a.in_use_hours) && hours_ok(a.after_thaw_hours));
+            if !ok {
+                out.push((
+                    m.meta.id.clone(),
+                    format!("material {}: a stability beyond 10 years", m.name),
+                ));
+            }
+        }
+        for t in &self.tests {
+            if !(200.0..=1100.0).contains(&t.wavelength_nm) {
+                out.push((
+                    t.meta.id.clone(),
+                    format!("test {}: wavelength {} nm", t.code, t.wavelength_nm),
+                ));
+            }
+        }
+        out
     }
 
     /// Control levels of a test, in the order they were set up.
@@ -571,13 +665,13 @@ mod tests {
     }
 
     #[test]
-    fn shifting_moves_every_date_and_keeps_ids() {
+    fn shifting_moves_every_time_and_keeps_ids() {
         let demo = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
         let mut moved = demo.clone();
-        moved.shift_days(10);
-        let before = demo.last_activity().unwrap();
+        moved.shift_by(chrono::Duration::days(10));
+        let before = demo.newest_time().unwrap();
         assert_eq!(
-            moved.last_activity().unwrap() - before,
+            moved.newest_time().unwrap() - before,
             chrono::Duration::days(10)
         );
         assert_eq!(moved.control_runs[0].meta.id, demo.control_runs[0].meta.id);
@@ -594,6 +688,42 @@ mod tests {
                 .to_string(),
             "2027-06"
         );
+        // A shift past the calendar's end leaves a label as it was instead of failing.
+        let far = "2027-05"
+            .parse::<crate::engine::stability::ExpiryDate>()
+            .unwrap();
+        assert_eq!(far.shifted(i64::MAX), far);
+    }
+
+    /// Issue: at night the demo's runs of "today" lay hours in the future. Placed before
+    /// any "now" (early morning, late evening, a month's last day, any zone offset),
+    /// nothing in the demo is later than now, and every gap between records is kept.
+    #[test]
+    fn the_demo_never_lands_in_the_future() {
+        let demo = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
+        let lead = chrono::Duration::minutes(3);
+        for now in [
+            "2026-03-10T00:30:00Z",
+            "2026-03-10T23:59:00Z",
+            "2026-01-31T23:59:59Z",
+            "2026-02-28T12:00:00Z",
+            "2027-12-31T23:30:00Z",
+        ] {
+            let now: DateTime<Utc> = now.parse().unwrap();
+            let mut placed = demo.clone();
+            placed.place_before(now, lead);
+            assert_eq!(placed.newest_time(), Some(now - lead), "{now}");
+            for (a, b) in demo.control_runs.iter().zip(&placed.control_runs) {
+                assert_eq!(
+                    b.run_at - a.run_at,
+                    now - lead - demo.newest_time().unwrap()
+                );
+                assert!(b.run_at <= now && b.meta.created_at <= now);
+            }
+            for m in &placed.materials {
+                assert!(m.stability.recorded_times().all(|t| t <= now), "{}", m.name);
+            }
+        }
     }
 
     #[test]

@@ -9,6 +9,8 @@ pub mod calc;
 pub mod engine;
 pub mod entry;
 pub mod export;
+pub mod journal;
 pub mod lab;
+pub mod mirror;
 pub mod store;
 pub mod ui;

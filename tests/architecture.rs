@@ -1,5 +1,5 @@
-//! Keeps the code map's invariants true: the engine is plain Rust (no browser crate, no
-//! storage), and only the store module touches localStorage.
+//! Keeps the code map's invariants true: the engine and the journal's logic are plain
+//! Rust (no browser crate, no storage), and only `src/store/` touches browser storage.
 
 use std::path::Path;
 
@@ -22,10 +22,13 @@ fn code_lines(text: &str) -> impl Iterator<Item = &str> {
 
 #[test]
 fn engine_imports_no_browser_crate_and_no_storage() {
-    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("src/engine");
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("src");
     let mut files = Vec::new();
-    rust_files(&root, &mut files);
+    rust_files(&src.join("engine"), &mut files);
     assert!(files.len() >= 5, "engine files not found");
+    // The journal's logic and its localStorage layout are plain Rust too.
+    files.push(src.join("journal.rs"));
+    files.push(src.join("mirror.rs"));
     let forbidden = [
         "leptos",
         "web_sys",
@@ -60,17 +63,28 @@ fn only_the_store_touches_local_storage() {
     let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("src");
     let mut files = Vec::new();
     rust_files(&root, &mut files);
+    // Browser storage: gloo's localStorage, web-sys's Storage and IndexedDB.
+    let touches = [
+        "gloo_storage",
+        "local_storage()",
+        "indexed_db()",
+        ".set_item(",
+        ".get_item(",
+        "Idb",
+    ];
     for f in files {
-        if f.ends_with("store.rs") {
+        if f.starts_with(root.join("store")) {
             continue;
         }
         let text = std::fs::read_to_string(&f).expect("read");
         for line in code_lines(&text) {
-            assert!(
-                !line.contains("LocalStorage") && !line.contains("local_storage"),
-                "{} touches storage outside src/store.rs",
-                f.display()
-            );
+            for word in touches {
+                assert!(
+                    !line.contains(word),
+                    "{} touches browser storage ({word}) outside src/store/",
+                    f.display()
+                );
+            }
         }
     }
 }

@@ -8,6 +8,7 @@ mod calibration;
 pub(crate) mod chart;
 mod instrument;
 mod materials;
+mod records;
 mod runs;
 mod setup;
 
@@ -18,7 +19,7 @@ use crate::engine::charts::LeveyJennings;
 use crate::engine::qcstats::{self, ControlResult, Summary, Target, TargetSource};
 use crate::engine::stability::{self, StabilityState, WarningWindow};
 use crate::lab::Lab;
-use crate::store;
+use crate::store::{self, shelf::Saved, shelf::Shelf};
 
 /// A new record made now by the technician on duty (meta and the instant), or the
 /// message asking for initials: every record says who did it.
@@ -55,6 +56,9 @@ pub(super) fn per_test(
 
 /// The demo lab, embedded at build time from `demo-data/`.
 pub const DEMO_LAB: &str = include_str!("../../demo-data/demo-lab.json");
+
+/// How long before "now" the demo lab's newest record is placed when it is loaded.
+const DEMO_LEAD: chrono::Duration = chrono::Duration::minutes(3);
 
 /// The bench's views, in the order of the navigation.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -114,15 +118,63 @@ impl View {
     }
 }
 
-/// The whole app.
+/// How the lab on screen stands against the stores.
+#[derive(Debug, Clone, PartialEq)]
+pub enum SaveState {
+    Opening,
+    Saving,
+    Saved(chrono::DateTime<Utc>),
+    /// Saved durably; the localStorage copy is behind (storage full).
+    DurableOnly(chrono::DateTime<Utc>),
+    /// Saved in localStorage only (no IndexedDB in this browser).
+    LocalOnly(chrono::DateTime<Utc>),
+    /// Not saved; the changes are held on screen.
+    NotSaved(String),
+}
+
+/// The open book, shared by the App's handlers (one thread: a local value).
+type ShelfCell = StoredValue<std::rc::Rc<std::cell::RefCell<Shelf>>, LocalStorage>;
+
+/// A change to commit: the lab as it should be, and the reason for a correction or void.
+#[derive(Debug, Clone)]
+pub struct Change {
+    pub lab: Lab,
+    pub reason: Option<String>,
+}
+
+/// Context for views that correct, void or look up a record's history.
+#[derive(Clone, Copy)]
+pub(crate) struct Trail {
+    /// Commit a correction or void with its reason.
+    pub amend: Callback<Change>,
+    /// The record whose history is shown.
+    pub history_of: RwSignal<Option<String>>,
+    /// Bumped whenever the journal changed (for the trail and history views).
+    pub revision: ReadSignal<u64>,
+    pub shelf: ShelfCell,
+}
+
+/// The whole app: the recovery screen if the last start failed, else the bench.
 #[component]
 pub fn App() -> impl IntoView {
+    match store::begin_start() {
+        Some(why) => view! { <records::RecoveryScreen why=why /> }.into_any(),
+        None => view! { <Bench /> }.into_any(),
+    }
+}
+
+#[component]
+fn Bench() -> impl IntoView {
     let (lab, set_lab) = signal::<Option<Lab>>(None);
     let (problem, set_problem) = signal::<Option<String>>(None);
-    match store::load_lab() {
-        Ok(saved) => set_lab.set(saved),
-        Err(e) => set_problem.set(Some(e.0)),
-    }
+    let (save_state, set_save_state) = signal(SaveState::Opening);
+    let (notes, set_notes) = signal::<Vec<String>>(Vec::new());
+    let (book, set_book) = signal(store::open_book());
+    let (revision, set_revision) = signal(0u64);
+    let history_of = RwSignal::new(None::<String>);
+    let shelf: ShelfCell = StoredValue::new_local(std::rc::Rc::new(std::cell::RefCell::new(
+        store::shelf::empty(book.get_untracked(), None),
+    )));
     let start = store::view()
         .and_then(|s| View::from_slug(&s))
         .unwrap_or(View::Today);
@@ -134,6 +186,119 @@ pub fn App() -> impl IntoView {
         move || set_clock.set(Utc::now()),
         std::time::Duration::from_secs(30),
     );
+    let show = move || {
+        let cell = shelf.get_value();
+        let s = cell.borrow();
+        set_lab.set(s.lab());
+        set_revision.update(|r| *r += 1);
+    };
+    let tabs = StoredValue::new_local(None::<store::Tabs>);
+    let flush = move || {
+        let cell = shelf.get_value();
+        leptos::task::spawn_local(async move {
+            let Some(outcome) = store::shelf::flush(&cell).await else {
+                return;
+            };
+            let now = Utc::now();
+            let book = cell.borrow().book;
+            set_save_state.set(match outcome {
+                Saved::Both => SaveState::Saved(now),
+                Saved::DurableOnly => SaveState::DurableOnly(now),
+                Saved::LocalOnly => SaveState::LocalOnly(now),
+                Saved::No(why) => SaveState::NotSaved(why),
+            });
+            tabs.with_value(|t| {
+                if let Some(t) = t {
+                    t.announce(book)
+                }
+            });
+            show();
+        });
+    };
+    // Open the stores, bring in a lab kept in the one-key format, show the book.
+    leptos::task::spawn_local(async move {
+        let mut found = Vec::new();
+        let db = match store::idb::Db::open().await {
+            Ok(db) => Some(db),
+            Err(e) => {
+                found.push(format!(
+                    "{e}. Records are kept in localStorage only, which the browser writes to \
+                     disk late: a power cut can lose the last minutes of work. Use another \
+                     browser window (not private mode), and export your records often."
+                ));
+                None
+            }
+        };
+        let (mut opened, notes) = store::shelf::open(book.get_untracked(), db.clone()).await;
+        found.extend(notes);
+        if let Some(old) = store::one_key_lab() {
+            if opened.entries.is_empty() && !store::shelf::has_mirror(store::Book::Lab) {
+                match Lab::from_json(&old) {
+                    Ok(old_lab) => {
+                        let target = if old_lab.demo {
+                            store::Book::Demo
+                        } else {
+                            store::Book::Lab
+                        };
+                        if target != opened.book {
+                            opened = store::shelf::open(target, db.clone()).await.0;
+                            set_book.set(target);
+                            let _ = store::set_open_book(target);
+                        }
+                        opened.found(&old_lab, Utc::now(), &store::technician());
+                        let n = opened.unsaved.len();
+                        let cell = std::rc::Rc::new(std::cell::RefCell::new(opened));
+                        let outcome = store::shelf::flush(&cell).await;
+                        if matches!(
+                            outcome,
+                            Some(Saved::Both | Saved::DurableOnly | Saved::LocalOnly)
+                        ) {
+                            store::forget_one_key_lab();
+                            found.push(format!(
+                                "The lab kept in the older one-key format was brought into the \
+                                 journal ({n} records); nothing was lost."
+                            ));
+                        } else {
+                            found.push(
+                                "The lab kept in the older one-key format could not be brought \
+                                 into the journal; it was left as it was."
+                                    .into(),
+                            );
+                        }
+                        opened = std::rc::Rc::try_unwrap(cell)
+                            .map(|c| c.into_inner())
+                            .unwrap_or_else(|c| store::shelf::empty(c.borrow().book, db.clone()));
+                    }
+                    Err(e) => found.push(format!(
+                        "the lab saved by an older Cuvette could not be read ({e}). It was left \
+                         untouched"
+                    )),
+                }
+            }
+        }
+        for a in &opened.replay.set_aside {
+            found.push(format!("Set aside, not used: {}", a.why));
+        }
+        found.extend(opened.replay.gaps.iter().cloned());
+        shelf.set_value(std::rc::Rc::new(std::cell::RefCell::new(opened)));
+        set_notes.set(found);
+        set_save_state.set(SaveState::Saved(Utc::now()));
+        show();
+        tabs.set_value(store::Tabs::open(move |news| {
+            let cell = shelf.get_value();
+            if cell.borrow().book != news {
+                return;
+            }
+            leptos::task::spawn_local(async move {
+                if store::shelf::refresh(&cell).await {
+                    show();
+                }
+            });
+        }));
+        // Once the lab is drawn, this start has succeeded (a hang never gets here; a
+        // panic is recorded by the panic hook).
+        request_animation_frame(store::start_finished);
+    });
 
     let choose = move |v: View| {
         set_active.set(v);
@@ -141,18 +306,77 @@ pub fn App() -> impl IntoView {
             set_problem.set(Some(e.0));
         }
     };
-    let load_demo = Callback::new(move |()| match Lab::from_json(DEMO_LAB) {
-        Ok(mut demo) => {
-            // Keep the invented history current: its last run was this morning.
-            demo.bring_to(Local::now().date_naive(), &Local);
-            match store::save_lab(&demo) {
-                Ok(()) => set_problem.set(None),
-                Err(e) => set_problem.set(Some(e.0)),
+    let commit = move |change: Change| {
+        let by = technician.get_untracked();
+        let result = {
+            let cell = shelf.get_value();
+            let mut s = cell.borrow_mut();
+            s.record(&change.lab, Utc::now(), &by, change.reason.as_deref())
+        };
+        match result {
+            Ok(0) => {}
+            Ok(_) => {
+                set_problem.set(None);
+                set_save_state.set(SaveState::Saving);
+                show();
+                flush();
             }
-            set_lab.set(Some(demo));
+            Err(e) => set_problem.set(Some(e.0)),
         }
-        Err(e) => set_problem.set(Some(format!("the demo lab is damaged: {e}"))),
+    };
+    let save = Callback::new(move |changed: Lab| {
+        commit(Change {
+            lab: changed,
+            reason: None,
+        })
     });
+    let amend = Callback::new(commit);
+    let switch_to = move |target: store::Book, fresh_demo: bool| {
+        let db = shelf.get_value().borrow().db.clone();
+        leptos::task::spawn_local(async move {
+            if fresh_demo {
+                if let Err(e) = store::shelf::clear(store::Book::Demo, db.as_ref()).await {
+                    return set_problem.set(Some(e.0));
+                }
+            }
+            let (mut opened, notes) = store::shelf::open(target, db).await;
+            if fresh_demo {
+                match Lab::from_json(DEMO_LAB) {
+                    Ok(mut demo) => {
+                        // Keep the invented history current: its newest record minutes ago.
+                        demo.place_before(Utc::now(), DEMO_LEAD);
+                        opened.found(&demo, Utc::now(), "DEMO");
+                    }
+                    Err(e) => {
+                        return set_problem.set(Some(format!("the demo lab is damaged: {e}")))
+                    }
+                }
+            }
+            shelf.set_value(std::rc::Rc::new(std::cell::RefCell::new(opened)));
+            set_notes.set(notes);
+            set_book.set(target);
+            if let Err(e) = store::set_open_book(target) {
+                set_problem.set(Some(e.0));
+            }
+            set_problem.set(None);
+            if fresh_demo {
+                set_save_state.set(SaveState::Saving);
+            }
+            show();
+            flush();
+        });
+    };
+    let load_demo = Callback::new(move |()| switch_to(store::Book::Demo, true));
+    let leave_demo = move |_| switch_to(store::Book::Lab, false);
+    let remove_demo = move |_| {
+        let db = shelf.get_value().borrow().db.clone();
+        leptos::task::spawn_local(async move {
+            if let Err(e) = store::shelf::clear(store::Book::Demo, db.as_ref()).await {
+                set_problem.set(Some(e.0));
+            }
+            switch_to(store::Book::Lab, false);
+        });
+    };
     let on_initials = move |ev: leptos::ev::Event| {
         let v = event_target_value(&ev).trim().to_uppercase();
         match store::set_technician(&v) {
@@ -160,19 +384,81 @@ pub fn App() -> impl IntoView {
             Err(e) => set_problem.set(Some(e.0)),
         }
     };
-    let save = Callback::new(move |changed: Lab| {
-        match store::save_lab(&changed) {
-            Ok(()) => set_problem.set(None),
-            Err(e) => set_problem.set(Some(e.0)),
-        }
-        set_lab.set(Some(changed));
+    provide_context(Trail {
+        amend,
+        history_of,
+        revision,
+        shelf,
     });
-    let is_demo = move || lab.with(|l| l.as_ref().is_some_and(|l| l.demo));
+    let in_demo = move || book.get() == store::Book::Demo;
     let lab_name = move || {
         lab.with(|l| {
             l.as_ref()
                 .map_or("No lab set up yet".to_string(), |l| l.lab_name.clone())
         })
+    };
+    let retry = move |_| flush();
+    let export_now = move |_| {
+        if let Some(l) = lab.get_untracked() {
+            let name = format!("cuvette-records-{}.json", Local::now().format("%Y-%m-%d"));
+            if let Err(e) = serde_json::to_string_pretty(&l)
+                .map_err(|e| e.to_string())
+                .and_then(|t| store::download(&name, "application/json", &t).map_err(|e| e.0))
+            {
+                set_problem.set(Some(e));
+            }
+        }
+    };
+    let state_line = move || match save_state.get() {
+        SaveState::Opening => ("opening", "Opening the lab…".to_string()),
+        SaveState::Saving => ("saving", "Saving…".to_string()),
+        SaveState::Saved(t) => (
+            "saved",
+            format!("All saved {}", t.with_timezone(&Local).format("%H:%M:%S")),
+        ),
+        SaveState::DurableOnly(t) => (
+            "saved-durable-only",
+            format!(
+                "Saved {} (second copy behind: storage full)",
+                t.with_timezone(&Local).format("%H:%M:%S")
+            ),
+        ),
+        SaveState::LocalOnly(t) => (
+            "saved-local-only",
+            format!(
+                "Saved {} in localStorage only (not safe from a power cut)",
+                t.with_timezone(&Local).format("%H:%M:%S")
+            ),
+        ),
+        SaveState::NotSaved(_) => ("not-saved", "NOT SAVED".to_string()),
+    };
+    let trouble = move || {
+        match save_state.get() {
+        SaveState::NotSaved(why) => {
+            let n = shelf.get_value().borrow().unsaved.len();
+            Some(view! {
+                <div class="problem" role="alert" data-testid="not-saved">
+                    <p>{format!(
+                        "{n} change(s) are shown but NOT SAVED: {why}. They are held on this screen \
+                         only and are lost if this page is closed. Export your records to a file \
+                         now, free space in the browser (or close private mode), then try again."
+                    )}</p>
+                    <button data-testid="export-now" on:click=export_now>"Export all records now"</button>
+                    " "
+                    <button data-testid="retry-save" on:click=retry>"Try saving again"</button>
+                </div>
+            }.into_any())
+        }
+        SaveState::DurableOnly(_) => Some(view! {
+            <div class="problem" role="alert" data-testid="storage-full">
+                <p>"Saved in the journal (IndexedDB), but the second copy in localStorage could \
+                    not be written: the browser's storage for pages opened from files is full \
+                    (other pages share it). Export all records now and free space."</p>
+                <button data-testid="export-now" on:click=export_now>"Export all records now"</button>
+            </div>
+        }.into_any()),
+        _ => None,
+    }
     };
 
     view! {
@@ -182,6 +468,9 @@ pub fn App() -> impl IntoView {
                 <span class="name">"Cuvette"</span>
                 <span class="lab" data-testid="lab-name">{lab_name}</span>
             </div>
+            <span class="save-state" data-testid="save-state" data-state=move || state_line().0>
+                {move || state_line().1}
+            </span>
             <label class="initials">
                 "Technician "
                 <input
@@ -194,9 +483,12 @@ pub fn App() -> impl IntoView {
                 />
             </label>
         </header>
-        <Show when=is_demo>
+        <Show when=in_demo>
             <p class="demo-banner" data-testid="demo-banner">
-                "DEMO LAB: invented data for practice. Nothing here is a patient result."
+                "DEMO LAB: invented data for practice. Nothing here is a patient result. "
+                <button data-testid="leave-demo" on:click=leave_demo>"Back to my lab"</button>
+                " "
+                <button data-testid="remove-demo" on:click=remove_demo>"Remove the demo"</button>
             </p>
         </Show>
         <p class="caution">
@@ -204,7 +496,10 @@ pub fn App() -> impl IntoView {
              local regulations; it does not replace them or the judgement of qualified staff. \
              Never release results of a rejected run."
         </p>
+        {trouble}
         {move || problem.get().map(|p| view! { <p class="problem" role="alert" data-testid="problem">{p}</p> })}
+        <records::StartReport notes=notes />
+        <records::HistoryPanel />
         <nav class="views" aria-label="Views">
             {View::ALL
                 .into_iter()
@@ -223,6 +518,7 @@ pub fn App() -> impl IntoView {
         </nav>
         <main>
             <ViewPanel view=View::Today active=active>
+                <records::StorageWarning lab=lab clock=clock />
                 <TodayBoard lab=lab clock=clock />
             </ViewPanel>
             <ViewPanel view=View::Calibration active=active>
@@ -241,7 +537,9 @@ pub fn App() -> impl IntoView {
                 <instrument::InstrumentView lab=lab save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Records active=active>
-                <RecordsPanel lab=lab set_lab=set_lab set_problem=set_problem />
+                <RecordsPanel lab=lab set_problem=set_problem />
+                <records::StorageMeter lab=lab clock=clock />
+                <records::DayTrail clock=clock />
             </ViewPanel>
             <ViewPanel view=View::Setup active=active>
                 <setup::SetupView lab=lab save=save technician=technician load_demo=load_demo />
@@ -285,12 +583,11 @@ fn EmptyState(
 fn RecordsPanel(
     /// The lab being worked on.
     lab: ReadSignal<Option<Lab>>,
-    /// Replaces the lab after an import.
-    set_lab: WriteSignal<Option<Lab>>,
     /// Where problems are shown.
     set_problem: WriteSignal<Option<String>>,
 ) -> impl IntoView {
     let (outcome, set_outcome) = signal::<Option<String>>(None);
+    let amend = expect_context::<Trail>().amend;
     let export = move |_| {
         let Some(text) = lab.with(|l| {
             l.as_ref()
@@ -349,12 +646,10 @@ fn RecordsPanel(
                 empty
             });
             let count = merged.merge(&incoming);
-            if let Err(e) = store::save_lab(&merged) {
-                set_problem.set(Some(e.0));
-            } else {
-                set_problem.set(None);
-            }
-            set_lab.set(Some(merged));
+            amend.run(Change {
+                lab: merged,
+                reason: Some(format!("imported from {name}")),
+            });
             set_outcome.set(Some(format!(
                 "Imported {name}: {} new records, {} updated, {} already here.",
                 count.added, count.updated, count.kept

@@ -65,6 +65,11 @@ fn TestRuns(
                         <td>{run.meta.by.clone()}</td>
                         <td>{shown}</td>
                         <td>{verdict_view(&verdict, &names, &run_dates)}</td>
+                        <td class="no-print">
+                            <super::records::HistoryButton id=run.meta.id.clone() />
+                            " "
+                            <super::records::VoidButton lab=lab.clone() id=run.meta.id.clone() />
+                        </td>
                     </tr>
                 }
             })
@@ -84,7 +89,7 @@ fn TestRuns(
                 <p class="empty">"No QC runs recorded yet."</p>
             </Show>
             <table>
-                <thead><tr><th>"Run"</th><th>"By"</th><th>"Control results"</th><th>"Decision"</th></tr></thead>
+                <thead><tr><th>"Run"</th><th>"By"</th><th>"Control results"</th><th>"Decision"</th><th class="no-print">"Record"</th></tr></thead>
                 <tbody>{rows}</tbody>
             </table>
         </section>

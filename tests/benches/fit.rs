@@ -7,9 +7,8 @@ use cuvette::engine::calibration::{fit, CalPoint, ModelKind, ReplicateUse, Weigh
 use cuvette::engine::qc::{evaluate, LevelTarget, Rule, RuleSetting};
 
 fn ryegrass() -> Vec<CalPoint> {
-    let dir = std::env::var("CUVETTE_REFERENCE").unwrap_or_else(|_| {
-        concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference").to_string()
-    });
+    let dir = std::env::var("CUVETTE_REFERENCE")
+        .unwrap_or_else(|_| concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference").to_string());
     let text =
         std::fs::read_to_string(format!("{dir}/dose-response/ryegrass.csv")).expect("ryegrass.csv");
     text.lines()

@@ -2,7 +2,7 @@
 // live by the engine, saved with the technician's initials, still there after reload.
 import { test } from "node:test";
 import assert from "node:assert/strict";
-import { openApp, newProfile, byTestId } from "./helpers.mjs";
+import { openApp, newProfile, byTestId, waitReady, waitSaved } from "./helpers.mjs";
 
 test("a new glucose calibration is fitted, judged, saved and kept", async () => {
   const { context, page, problems } = await openApp(newProfile());
@@ -40,8 +40,10 @@ test("a new glucose calibration is fitted, judged, saved and kept", async () => 
       (n) => document.querySelectorAll('[data-testid="calibration-GLU"] [data-testid="calibration-row"]').length === n,
       before + 1,
     );
-    await page.reload();
-    await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached" });
+    await waitSaved(page);
+    await waitSaved(page);
+  await page.reload();
+    await waitReady(page);
     const rows = byTestId(page, "calibration-GLU").locator('[data-testid="calibration-row"]');
     assert.equal(await rows.count(), before + 1);
     assert.match(await rows.first().innerText(), /ZT/);

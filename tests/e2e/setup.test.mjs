@@ -2,7 +2,7 @@
 // engine-side forms, then a QC run against that level.
 import { test } from "node:test";
 import assert from "node:assert/strict";
-import { openApp, newProfile, byTestId } from "./helpers.mjs";
+import { openApp, newProfile, byTestId, waitReady, waitSaved } from "./helpers.mjs";
 
 test("a lab sets up its first test and control level, then runs QC", async () => {
   const { context, page, problems } = await openApp(newProfile());
@@ -46,8 +46,10 @@ test("a lab sets up its first test and control level, then runs QC", async () =>
     assert.match(await page.locator(".run-preview").innerText(), /^warning/);
     await byTestId(page, "save-run").click();
     await byTestId(page, "qc-run").first().waitFor();
-    await page.reload();
-    await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached" });
+    await waitSaved(page);
+    await waitSaved(page);
+  await page.reload();
+    await waitReady(page);
     assert.equal(await byTestId(page, "qc-run").count(), 1);
     assert.deepEqual(problems, []);
   } finally {

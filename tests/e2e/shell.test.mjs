@@ -5,7 +5,7 @@ import assert from "node:assert/strict";
 import { copyFileSync, mkdtempSync, readFileSync, writeFileSync } from "node:fs";
 import { tmpdir } from "node:os";
 import { join } from "node:path";
-import { openApp, newProfile, byTestId, singleFile } from "./helpers.mjs";
+import { openApp, newProfile, byTestId, singleFile, waitReady, waitSaved } from "./helpers.mjs";
 
 test("the single file renders the app shell from file://", async () => {
   const { context, page, problems } = await openApp(newProfile());
@@ -34,8 +34,9 @@ test("saved values survive a reload and a browser restart", async () => {
   await byTestId(page, "nav-materials").click();
   const keys = await page.evaluate(() => Object.keys(localStorage));
   assert.ok(keys.length > 0 && keys.every((k) => k.startsWith("cuvette.")), `keys: ${keys}`);
+  await waitSaved(page);
   await page.reload();
-  await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached" });
+  await waitReady(page);
   assert.equal(await byTestId(page, "initials").inputValue(), "AB");
   assert.equal(await byTestId(page, "view-materials").isVisible(), true);
   assert.deepEqual(problems, []);
@@ -76,6 +77,7 @@ test("the demo lab loads from the embedded file and draws control charts", async
   assert.match(stats, /All accepted\s+n (2[0-5]),/);
   assert.match(stats, /lab's own target is available/);
   assert.deepEqual(problems, []);
+  await waitSaved(page);
   await context.close();
   // The demo lab is still there after a restart.
   ({ context, page, problems } = await openApp(profile));

@@ -1,0 +1,341 @@
+//! The open book: its journal in memory, the lab replayed from it, and the way a change
+//! reaches both stores. A change becomes entries at once (shown as "saving"), is
+//! committed to IndexedDB with strict durability, and only then counts as saved; the
+//! localStorage mirror follows. If another tab wrote first, its entries are taken in
+//! and ours are renumbered after them, so neither tab's records are lost.
+
+use std::cell::RefCell;
+use std::rc::Rc;
+
+use chrono::{DateTime, Utc};
+
+use super::idb::{AppendError, Db};
+use super::{Book, Local, StoreError};
+use crate::journal::{self, ChangeError, Entry, Replay};
+use crate::lab::Lab;
+use crate::mirror::{KeyValue, Mirror, Pointer};
+
+/// One book, open.
+pub struct Shelf {
+    pub book: Book,
+    pub db: Option<Db>,
+    /// Entries committed (to IndexedDB, or to localStorage where there is no IndexedDB).
+    pub entries: Vec<Entry>,
+    /// Entries made here and not yet committed.
+    pub unsaved: Vec<Entry>,
+    /// The lab from `entries` then `unsaved`.
+    pub replay: Replay,
+    pub skip: Vec<u64>,
+    pointer: Option<Pointer>,
+    flushing: bool,
+}
+
+/// How the last save went.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Saved {
+    /// In IndexedDB (durable) and in the localStorage copy.
+    Both,
+    /// In IndexedDB; the localStorage copy refused (full): it is behind.
+    DurableOnly,
+    /// Only in localStorage (this browser gives no IndexedDB): not safe from a power cut.
+    LocalOnly,
+    /// Not saved: the entries are kept in memory; the message says what to do.
+    No(String),
+}
+
+impl Shelf {
+    fn mirror(&self) -> Mirror {
+        Mirror::new(self.book.prefix())
+    }
+
+    /// The lab on screen (`None` for a book with nothing in it).
+    pub fn lab(&self) -> Option<Lab> {
+        (!self.entries.is_empty() || !self.unsaved.is_empty()).then(|| self.replay.lab.clone())
+    }
+
+    /// Turn the difference between the lab on screen and `new` into entries made `at`
+    /// by `by`, shown at once and not yet saved. Returns how many.
+    pub fn record(
+        &mut self,
+        new: &Lab,
+        at: DateTime<Utc>,
+        by: &str,
+        reason: Option<&str>,
+    ) -> Result<usize, ChangeError> {
+        let changes = journal::changes(&self.replay.lab, new);
+        let entries = journal::entries_for(
+            &changes,
+            &self.replay.version_numbers(),
+            &self.replay.tip,
+            at,
+            by,
+            reason,
+        )?;
+        self.replay.extend(&entries, None, &[]);
+        let n = entries.len();
+        self.unsaved.extend(entries);
+        Ok(n)
+    }
+
+    /// Entries of a whole lab, made in one go (the demo started, a one-key lab brought in).
+    pub fn found(&mut self, lab: &Lab, at: DateTime<Utc>, by: &str) {
+        let entries = journal::founding_entries(lab, at, by);
+        self.replay.extend(&entries, None, &[]);
+        self.unsaved.extend(entries);
+    }
+
+    /// Write the localStorage copy; false when the browser refused.
+    fn write_mirror(&mut self, fresh: bool) -> bool {
+        let mirror = self.mirror();
+        let mut kv = Local;
+        // Another tab may have written a newer generation: build on it, never behind it.
+        let stored = mirror.pointer(&kv).ok().flatten();
+        let previous = match (stored, self.pointer.clone()) {
+            (Some(s), Some(p)) if s.generation >= p.generation => Some(s),
+            (Some(s), None) => Some(s),
+            (_, p) => p,
+        };
+        if previous
+            .as_ref()
+            .is_some_and(|p| p.count as usize > self.entries.len())
+        {
+            return true; // the copy is ahead of this tab; it will be read, not overwritten
+        }
+        let previous = previous.map(|p| {
+            if fresh {
+                Pointer {
+                    chunks: Vec::new(),
+                    count: 0,
+                    ..p
+                }
+            } else {
+                p
+            }
+        });
+        match mirror.write(&mut kv, &self.entries, previous.as_ref()) {
+            Ok(p) => {
+                self.pointer = Some(p);
+                if fresh {
+                    mirror.sweep(&mut kv);
+                }
+                true
+            }
+            Err(_) => false,
+        }
+    }
+
+    /// Take in entries another tab committed, and renumber ours after them.
+    fn take_in(&mut self, newer: Vec<Entry>) {
+        if newer.is_empty() {
+            return;
+        }
+        self.entries.extend(newer);
+        self.replay = journal::replay(&self.entries, None, &self.skip);
+        let ours = std::mem::take(&mut self.unsaved);
+        for mut e in ours {
+            e.seq = self.replay.tip.next_seq;
+            e.prev = self.replay.tip.hash.clone();
+            e.version = self.replay.versions.get(&e.id).map_or(1, |(v, _)| v + 1);
+            let e = e.seal();
+            self.replay.extend(std::slice::from_ref(&e), None, &[]);
+            self.unsaved.push(e);
+        }
+    }
+}
+
+/// Open a book: sweep what an interrupted save left, read both copies, repair the one
+/// that lacks entries, replay. Returns the shelf and what was found, in words.
+pub async fn open(book: Book, db: Option<Db>) -> (Shelf, Vec<String>) {
+    let mut notes = Vec::new();
+    let mirror = Mirror::new(book.prefix());
+    let mut kv = Local;
+    let swept = mirror.sweep(&mut kv);
+    if swept > 0 {
+        notes.push(format!(
+            "{swept} half-written chunk(s) of an interrupted save were removed; the save \
+             before it is intact"
+        ));
+    }
+    let read = mirror.read(&kv);
+    notes.extend(read.problems.iter().cloned());
+    let durable = match &db {
+        Some(db) => match db.read(book.store_name(), 0).await {
+            Ok((entries, unreadable)) => {
+                for (seq, _) in unreadable {
+                    notes.push(format!("journal entry {seq} in IndexedDB cannot be read"));
+                }
+                Some(entries)
+            }
+            Err(e) => {
+                notes.push(e.0);
+                None
+            }
+        },
+        None => None,
+    };
+    let rec = journal::reconcile(durable.as_deref(), &read.entries);
+    notes.extend(rec.notes.iter().cloned());
+    if let (Some(db), false) = (&db, rec.missing_in_durable.is_empty()) {
+        if let Err(e) = db
+            .put_missing(book.store_name(), &rec.missing_in_durable)
+            .await
+        {
+            notes.push(e.0);
+        }
+    }
+    let skip = super::set_aside(book);
+    let head = (read.entries == rec.entries)
+        .then(|| read.pointer.as_ref().map(|p| p.head.clone()))
+        .flatten();
+    let replay = journal::replay(&rec.entries, head.as_deref(), &skip);
+    let mut shelf = Shelf {
+        book,
+        db,
+        entries: rec.entries,
+        unsaved: Vec::new(),
+        replay,
+        skip,
+        pointer: read.pointer,
+        flushing: false,
+    };
+    // A copy that is only behind gets the missing entries; a damaged or different one
+    // is written afresh.
+    let fresh = !read.problems.is_empty() || !shelf.entries.starts_with(&read.entries);
+    if (rec.mirror_stale || fresh) && !shelf.entries.is_empty() && !shelf.write_mirror(fresh) {
+        notes.push(
+            "the localStorage copy could not be repaired: this browser's storage is full".into(),
+        );
+    }
+    (shelf, notes)
+}
+
+/// Commit what is unsaved, until nothing is; one flush at a time (a second call while
+/// one runs returns at once, the running one picks its entries up).
+pub async fn flush(cell: &Rc<RefCell<Shelf>>) -> Option<Saved> {
+    {
+        let mut s = cell.borrow_mut();
+        if s.flushing || s.unsaved.is_empty() {
+            return None;
+        }
+        s.flushing = true;
+    }
+    let mut outcome = Saved::Both;
+    loop {
+        let (db, book, batch) = {
+            let s = cell.borrow();
+            (s.db.clone(), s.book, s.unsaved.clone())
+        };
+        if batch.is_empty() {
+            break;
+        }
+        match db {
+            Some(db) => match db.append(book.store_name(), &batch).await {
+                Ok(()) => {
+                    let mut s = cell.borrow_mut();
+                    s.unsaved.drain(..batch.len());
+                    s.entries.extend(batch);
+                    if !s.write_mirror(false) {
+                        outcome = Saved::DurableOnly;
+                    }
+                }
+                Err(AppendError::Taken) => {
+                    let from = cell.borrow().entries.len() as u64 + 1;
+                    let newer = db.read(book.store_name(), from).await;
+                    match newer {
+                        Ok((newer, _)) if !newer.is_empty() => cell.borrow_mut().take_in(newer),
+                        Ok(_) => {
+                            outcome = Saved::No(
+                                "the journal refused the entry numbers and has no newer \
+                                 entries: reload the page"
+                                    .into(),
+                            );
+                            break;
+                        }
+                        Err(e) => {
+                            outcome = Saved::No(e.0);
+                            break;
+                        }
+                    }
+                }
+                Err(AppendError::Refused(why)) => {
+                    outcome = Saved::No(why);
+                    break;
+                }
+            },
+            None => {
+                let mut s = cell.borrow_mut();
+                let before = s.entries.len();
+                s.entries.extend(batch.iter().cloned());
+                if s.write_mirror(false) {
+                    s.unsaved.drain(..batch.len());
+                    outcome = Saved::LocalOnly;
+                } else {
+                    s.entries.truncate(before);
+                    outcome = Saved::No("the browser's storage is full".into());
+                    break;
+                }
+            }
+        }
+    }
+    cell.borrow_mut().flushing = false;
+    Some(outcome)
+}
+
+/// Take in what another tab committed. Returns true when something new came in.
+pub async fn refresh(cell: &Rc<RefCell<Shelf>>) -> bool {
+    let (db, book, have, busy) = {
+        let s = cell.borrow();
+        (s.db.clone(), s.book, s.entries.len(), s.flushing)
+    };
+    if busy {
+        return false; // the running flush takes the other tab's entries in itself
+    }
+    let newer = match db {
+        Some(db) => match db.read(book.store_name(), have as u64 + 1).await {
+            Ok((newer, _)) => newer,
+            Err(_) => return false,
+        },
+        None => {
+            let read = Mirror::new(book.prefix()).read(&Local);
+            read.entries.into_iter().skip(have).collect()
+        }
+    };
+    if newer.is_empty() {
+        return false;
+    }
+    cell.borrow_mut().take_in(newer);
+    true
+}
+
+/// Remove a book from both stores (the demo switched off).
+pub async fn clear(book: Book, db: Option<&Db>) -> Result<(), StoreError> {
+    Mirror::new(book.prefix()).clear(&mut Local);
+    if let Some(db) = db {
+        db.clear(book.store_name()).await?;
+    }
+    Ok(())
+}
+
+/// An empty shelf (before the stores answered).
+pub fn empty(book: Book, db: Option<Db>) -> Shelf {
+    Shelf {
+        book,
+        db,
+        entries: Vec::new(),
+        unsaved: Vec::new(),
+        replay: Replay::empty(),
+        skip: Vec::new(),
+        pointer: None,
+        flushing: false,
+    }
+}
+
+/// Characters the book's localStorage copy takes.
+pub fn mirror_size(book: Book) -> usize {
+    Mirror::new(book.prefix()).size(&Local)
+}
+
+/// Whether a key-value store has anything under the book's prefix.
+pub fn has_mirror(book: Book) -> bool {
+    Local.keys().iter().any(|k| k.starts_with(book.prefix()))
+}
