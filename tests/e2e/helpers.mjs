@@ -30,7 +30,7 @@ export const DEFAULT_ZONE = "Africa/Nairobi";
  *  <main>. The page's clock starts at `now` (ISO 8601) in the IANA zone `zone`.
  *  `problems` collects console errors, page errors, failed requests and any request
  *  that is not file: or data: (the app must need no network). */
-export async function openApp(profile, file = singleFile, { now = DEFAULT_NOW, zone = DEFAULT_ZONE } = {}) {
+export async function openApp(profile, file = singleFile, { now = DEFAULT_NOW, zone = DEFAULT_ZONE, wait = true } = {}) {
   if (!existsSync(file)) {
     throw new Error(`${file} is missing: build it with trunk build --release first`);
   }
@@ -54,7 +54,7 @@ export async function openApp(profile, file = singleFile, { now = DEFAULT_NOW, z
     if (!/^(file|data):/.test(req.url())) problems.push(`network request: ${req.url()}`);
   });
   await page.goto(pathToFileURL(file).href);
-  await waitReady(page);
+  if (wait) await waitReady(page);
   return { context, page, problems };
 }
 

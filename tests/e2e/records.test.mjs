@@ -1,0 +1,193 @@
+// Records that cannot be lost: a record shown as saved survives the browser being
+// killed; two tabs both keep their records; the demo never touches the lab's own keys;
+// a lab kept in the one-key format is brought into the journal; an edited stored chunk
+// is reported and repaired; a start that failed opens the recovery screen.
+import { test } from "node:test";
+import assert from "node:assert/strict";
+import { execSync } from "node:child_process";
+import { openApp, newProfile, byTestId, waitSaved } from "./helpers.mjs";
+
+/** Record a material opened now, named `name`. */
+async function addMaterial(page, name) {
+  await byTestId(page, "nav-materials").click();
+  await byTestId(page, "new-material").click();
+  await byTestId(page, "material-name").fill(name);
+  await byTestId(page, "material-expiry").fill("2030-12");
+  await byTestId(page, "material-days").fill("7");
+  await byTestId(page, "add-material").click();
+}
+
+async function initials(page, who) {
+  await byTestId(page, "initials").fill(who);
+  await byTestId(page, "initials").press("Enter");
+}
+
+const materialNames = (page) => byTestId(page, "view-materials").innerText();
+
+function killBrowser(profile) {
+  // SIGKILL every browser process of this profile: no shutdown, no flush (a power cut).
+  const rows = execSync("ps -eo pid=,args=", { encoding: "utf8" }).split("\n");
+  for (const row of rows) {
+    const [pid, ...args] = row.trim().split(/\s+/);
+    const cmd = args.join(" ");
+    if (cmd.includes(profile) && /chrom/.test(cmd) && Number(pid) !== process.pid) {
+      try { process.kill(Number(pid), "SIGKILL"); } catch { /* already gone */ }
+    }
+  }
+}
+
+test("a record shown as saved survives the browser being killed 0.5 s later (20 of 20)", async () => {
+  const profile = newProfile();
+  for (let k = 1; k <= 20; k++) {
+    const { page } = await openApp(profile);
+    // Settings live in localStorage, which a kill may undo: type the initials each time.
+    await initials(page, "kt");
+    await addMaterial(page, `Reagent kill-test ${k}`);
+    await waitSaved(page);
+    await page.waitForTimeout(500);
+    killBrowser(profile);
+    await new Promise((r) => setTimeout(r, 1000));
+  }
+  const { context, page, problems } = await openApp(profile);
+  try {
+    const text = await materialNames(page);
+    for (let k = 1; k <= 20; k++) assert.match(text, new RegExp(`Reagent kill-test ${k}`));
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("two tabs each add a record and both survive, each seeing the other's", async () => {
+  const profile = newProfile();
+  const { context, page } = await openApp(profile);
+  try {
+    await initials(page, "t1");
+    const other = await context.newPage();
+    await other.goto(page.url());
+    await other.waitForSelector('[data-testid=save-state]:not([data-state="opening"])');
+    await addMaterial(page, "Tab one reagent");
+    await waitSaved(page);
+    await addMaterial(other, "Tab two reagent");
+    await waitSaved(other);
+    // Each tab shows the other's record within a second, without a reload.
+    await page.waitForFunction(() => /Tab two reagent/.test(document.querySelector('[data-testid="view-materials"]').textContent), null, { timeout: 2000 });
+    assert.match(await materialNames(other), /Tab one reagent.*|Tab two reagent/s);
+    assert.match(await materialNames(other), /Tab one reagent/);
+    await other.reload();
+    await other.waitForSelector('[data-testid=save-state]:not([data-state="opening"])');
+    await byTestId(other, "nav-materials").click();
+    const after = await materialNames(other);
+    assert.match(after, /Tab one reagent/);
+    assert.match(after, /Tab two reagent/);
+  } finally {
+    await context.close();
+  }
+});
+
+test("loading and removing the demo leaves the lab's own stored records byte-identical", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await initials(page, "ow");
+    await addMaterial(page, "Our own reagent");
+    await waitSaved(page);
+    const ours = () => page.evaluate(() => Object.fromEntries(Object.entries(localStorage).filter(([k]) => k.startsWith("cuvette.lab."))));
+    const before = await ours();
+    assert.ok(Object.keys(before).length >= 2, JSON.stringify(Object.keys(before)));
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
+    await waitSaved(page);
+    assert.deepEqual(await ours(), before);
+    await byTestId(page, "remove-demo").click();
+    await byTestId(page, "demo-banner").waitFor({ state: "detached" });
+    await waitSaved(page);
+    assert.deepEqual(await ours(), before);
+    const keys = await page.evaluate(() => Object.keys(localStorage));
+    assert.ok(!keys.some((k) => k.startsWith("cuvette.demo.")), keys.join(","));
+    await byTestId(page, "nav-materials").click();
+    assert.match(await materialNames(page), /Our own reagent/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("a lab kept in the one-key format is brought into the journal, losing nothing", async () => {
+  const profile = newProfile();
+  let { context, page } = await openApp(profile);
+  // The stored fixture: the format of the previous release, one key holding the lab.
+  const fixture = JSON.stringify({
+    schema_version: 1, lab_name: "Hill clinic lab", demo: false,
+    tests: [], control_levels: [], control_runs: [], calibrations: [], instrument_log: [],
+    materials: [{
+      meta: { id: "0b6e7d0e-3c43-4a4f-9d2f-1d4f6a2b9c10", created_at: "2026-11-20T07:00:00Z", changed_at: "2026-11-20T07:00:00Z", by: "HM" },
+      kind: "reagent", name: "Urea reagent kept in one key", lot: "U-77",
+      stability: { expiry: "2027-06", opened_at: "2026-11-20T07:00:00Z", in_use_hours: 720, analytes: [] },
+    }],
+    temperature_limits: { low: 36.5, high: 37.5 },
+  });
+  await page.evaluate((f) => {
+    for (const k of Object.keys(localStorage)) if (k.startsWith("cuvette.lab.")) localStorage.removeItem(k);
+    localStorage.setItem("cuvette.lab", f);
+  }, fixture);
+  await context.close();
+  ({ context, page } = await openApp(profile));
+  try {
+    assert.match(await byTestId(page, "start-report").innerText(), /older one-key format was brought into the journal/);
+    assert.match(await byTestId(page, "lab-name").innerText(), /Hill clinic lab/);
+    await byTestId(page, "nav-materials").click();
+    assert.match(await materialNames(page), /Urea reagent kept in one key.*HM/s);
+    assert.equal(await page.evaluate(() => localStorage.getItem("cuvette.lab")), null);
+  } finally {
+    await context.close();
+  }
+});
+
+test("an edited chunk in localStorage is reported and repaired from the journal", async () => {
+  const profile = newProfile();
+  let { context, page } = await openApp(profile);
+  await initials(page, "ed");
+  await addMaterial(page, "Reagent to be tampered with");
+  await waitSaved(page);
+  await page.evaluate(() => {
+    const k = Object.keys(localStorage).find((k) => /^cuvette\.lab\.c0\./.test(k));
+    const v = localStorage.getItem(k);
+    const i = Math.floor(v.length / 2);
+    localStorage.setItem(k, v.slice(0, i) + String.fromCharCode(((v.charCodeAt(i) - 0x4e00 + 1) % 0x8000) + 0x4e00) + v.slice(i + 1));
+  });
+  await context.close();
+  ({ context, page } = await openApp(profile));
+  try {
+    assert.match(await byTestId(page, "start-report").innerText(), /cuvette\.lab\.c0\.g\d+ cannot be read/);
+    await byTestId(page, "nav-materials").click();
+    assert.match(await materialNames(page), /Reagent to be tampered with/);
+  } finally {
+    await context.close();
+  }
+});
+
+test("a start that did not finish leads to the recovery screen, which opens the lab", async () => {
+  const profile = newProfile();
+  let { context, page } = await openApp(profile);
+  await initials(page, "rc");
+  await addMaterial(page, "Reagent kept through a crash");
+  await waitSaved(page);
+  // What the panic hook leaves behind when the app dies while drawing the lab.
+  await page.evaluate(() => localStorage.setItem("cuvette.boot", "failed:panicked at src/engine/stability.rs"));
+  await context.close();
+  ({ context, page } = await openApp(profile, undefined, { wait: false }));
+  await page.waitForSelector("[data-testid=recovery]", { timeout: 20000 });
+  try {
+    await byTestId(page, "recovery").waitFor();
+    assert.match(await byTestId(page, "recovery-why").innerText(), /panicked at src\/engine\/stability\.rs/);
+    const [download] = await Promise.all([page.waitForEvent("download"), byTestId(page, "recovery-download").click()]);
+    assert.match(download.suggestedFilename(), /^cuvette-stored-data-.*\.json$/);
+    await byTestId(page, "recovery-open-without").click();
+    await page.waitForSelector('[data-testid=save-state]:not([data-state="opening"])');
+    await byTestId(page, "nav-materials").click();
+    assert.match(await materialNames(page), /Reagent kept through a crash/);
+  } finally {
+    await context.close();
+  }
+});
