@@ -17,7 +17,15 @@ pub(super) fn state_word(s: StabilityState) -> &'static str {
     }
 }
 
-fn row(what: String, lot: String, by: String, u: &UsableUntil) -> impl IntoView {
+/// One line of the table; `record` (the lab and the material's id) adds its history and
+/// void buttons on the material's own line.
+fn row(
+    what: String,
+    lot: String,
+    by: String,
+    u: &UsableUntil,
+    record: Option<(Lab, String)>,
+) -> impl IntoView {
     let class = match u.state {
         StabilityState::Ok => "state-ok",
         StabilityState::Expiring => "state-expiring",
@@ -32,6 +40,9 @@ fn row(what: String, lot: String, by: String, u: &UsableUntil) -> impl IntoView 
             <td>{stability::describe_left(u.hours_left)}</td>
             <td>{u.governed_by.describe()}</td>
             <td>{state_word(u.state)}{u.remarks.iter().map(|r| format!("; {r}")).collect::<String>()}</td>
+            <td class="no-print">{record.map(|(lab, id)| view! {
+                <super::records::HistoryButton id=id.clone() />" "<super::records::VoidButton lab=lab id=id />
+            })}</td>
         </tr>
     }
 }
@@ -58,11 +69,11 @@ pub fn MaterialsView(
                 .iter()
                 .map(|m| match stability::evaluate(&m.stability, now, &Local, WarningWindow::default()) {
                     Ok(r) => {
-                        let main = row(m.name.clone(), m.lot.clone(), m.meta.by.clone(), &r.material);
+                        let main = row(m.name.clone(), m.lot.clone(), m.meta.by.clone(), &r.material, Some((l.clone(), m.meta.id.clone())));
                         let per_analyte = r
                             .analytes
                             .iter()
-                            .map(|(a, u)| row(format!("  {} — {a}", m.name), m.lot.clone(), m.meta.by.clone(), u))
+                            .map(|(a, u)| row(format!("  {} — {a}", m.name), m.lot.clone(), m.meta.by.clone(), u, None))
                             .collect_view();
                         view! { {main}{per_analyte} }.into_any()
                     }
@@ -77,7 +88,7 @@ pub fn MaterialsView(
                     <thead>
                         <tr>
                             <th>"Material"</th><th>"Lot"</th><th>"Opened by"</th><th>"Usable until"</th>
-                            <th>"Time left"</th><th>"Set by"</th><th>"State"</th>
+                            <th>"Time left"</th><th>"Set by"</th><th>"State"</th><th class="no-print">"Record"</th>
                         </tr>
                     </thead>
                     <tbody>{rows}</tbody>

@@ -28,16 +28,27 @@ pub fn SetupView(
                 l.tests
                     .iter()
                     .map(|t| {
-                        let levels: Vec<String> = l
+                        let levels = l
                             .levels_of(&t.meta.id)
-                            .iter()
-                            .map(|v| format!("{} (lot {}): {} ± {} {}", v.name, v.lot, v.mean, v.sd, t.unit))
-                            .collect();
+                            .into_iter()
+                            .map(|v| {
+                                let text = format!("{} (lot {}): {} ± {} {}", v.name, v.lot, v.mean, v.sd, t.unit);
+                                view! {
+                                    <li data-testid="setup-level">
+                                        {text}" "
+                                        <super::records::HistoryButton id=v.meta.id.clone() />
+                                        <CorrectLevel lab=l.clone() level=v.clone() />
+                                    </li>
+                                }
+                            })
+                            .collect_view();
                         view! {
                             <li data-testid="setup-test">
                                 <strong>{format!("{} {}", t.code, t.name)}</strong>
-                                {format!(" — {} nm, {}, {}", t.wavelength_nm, t.model.code(), t.unit)}
-                                <ul>{levels.into_iter().map(|v| view! { <li>{v}</li> }).collect_view()}</ul>
+                                {format!(" — {} nm, {}, {}", t.wavelength_nm, t.model.code(), t.unit)}" "
+                                <super::records::HistoryButton id=t.meta.id.clone() />
+                                <CorrectTest lab=l.clone() test=t.clone() />
+                                <ul>{levels}</ul>
                                 <NewLevel lab=lab save=save technician=technician test_id=t.meta.id.clone() code=t.code.clone() />
                             </li>
                         }
@@ -71,7 +82,8 @@ pub fn SetupView(
             <h3>"Demo lab"</h3>
             <p>
                 "Load an invented district-hospital lab with three tests, calibrations, QC history \
-                 and materials, to try every view. It replaces the lab saved in this browser."
+                 and materials, to try every view. It is kept apart from your lab's own records: \
+                 \"Back to my lab\" returns to them unchanged. Loading it again starts it afresh."
             </p>
             <button data-testid="load-demo" on:click=move |_| load_demo.run(())>"Load demo lab"</button>
         </section>
@@ -220,6 +232,180 @@ fn NewLevel(
                 {input("name", "Normal")}" "{input("lot", "lot")}" mean "{input("mean", "95")}" SD "{input("sd", "2.8")}" "
                 <button data-testid="add-level" on:click=add>"Add level"</button>
                 {move || message.get().map(|m| view! { <p class="problem" data-testid="level-message">{m}</p> })}
+            </div>
+        </details>
+    }
+}
+
+/// The reason line and buttons shared by the correction forms.
+fn reason_line(
+    set_reason: WriteSignal<String>,
+    on_save: impl Fn(leptos::ev::MouseEvent) + 'static,
+    message: ReadSignal<Option<String>>,
+) -> impl IntoView {
+    view! {
+        <label>"Reason "<input data-testid="correction-reason" size="30"
+            placeholder="why it is corrected"
+            on:input=move |ev| set_reason.set(event_target_value(&ev)) /></label>
+        " "<button data-testid="save-correction" on:click=on_save>"Save correction"</button>
+        {move || message.get().map(|m| view! { <p class="problem" data-testid="correction-message">{m}</p> })}
+    }
+}
+
+/// Correct a control level's name, lot or target; the reason is kept with the new
+/// version and the earlier one stays in the record's history.
+#[component]
+fn CorrectLevel(lab: Lab, level: crate::lab::ControlLevel) -> impl IntoView {
+    let trail = expect_context::<super::Trail>();
+    let (form, set_form) = signal(LevelForm {
+        name: level.name.clone(),
+        lot: level.lot.clone(),
+        mean: level.mean.to_string(),
+        sd: level.sd.to_string(),
+    });
+    let (reason, set_reason) = signal(String::new());
+    let (message, set_message) = signal(None::<String>);
+    let save = move |_| {
+        let why = reason.get_untracked();
+        if why.trim().is_empty() {
+            return set_message.set(Some("reason: say why the level is corrected".into()));
+        }
+        match form
+            .get_untracked()
+            .into_level(&level.test_id, level.meta.clone())
+        {
+            Ok(corrected) => {
+                let mut changed = lab.clone();
+                if let Some(l) = changed
+                    .control_levels
+                    .iter_mut()
+                    .find(|l| l.meta.id == corrected.meta.id)
+                {
+                    *l = corrected;
+                }
+                set_message.set(None);
+                trail.amend.run(super::Change {
+                    lab: changed,
+                    reason: Some(why),
+                });
+            }
+            Err(e) => set_message.set(Some(e)),
+        }
+    };
+    let input = move |name: &'static str| {
+        view! {
+            <input size="9" data-testid=format!("correct-level-{name}")
+                prop:value=move || form.with(|f| match name {
+                    "name" => f.name.clone(),
+                    "lot" => f.lot.clone(),
+                    "mean" => f.mean.clone(),
+                    _ => f.sd.clone(),
+                })
+                on:input=move |ev| {
+                    let v = event_target_value(&ev);
+                    set_form.update(|f| match name {
+                        "name" => f.name = v,
+                        "lot" => f.lot = v,
+                        "mean" => f.mean = v,
+                        _ => f.sd = v,
+                    })
+                } />
+        }
+    };
+    view! {
+        <details class="correct">
+            <summary data-testid="correct-level">"correct"</summary>
+            <div class="form">
+                {input("name")}" lot "{input("lot")}" mean "{input("mean")}" SD "{input("sd")}<br/>
+                {reason_line(set_reason, save, message)}
+            </div>
+        </details>
+    }
+}
+
+/// Correct a test's name, unit, wavelength or linearity limit, with a reason.
+#[component]
+fn CorrectTest(lab: Lab, test: crate::lab::TestSetup) -> impl IntoView {
+    let trail = expect_context::<super::Trail>();
+    let (form, set_form) = signal(TestForm {
+        code: test.code.clone(),
+        name: test.name.clone(),
+        unit: test.unit.clone(),
+        mode: match test.mode {
+            crate::lab::ReadingMode::EndPoint => "end-point",
+            crate::lab::ReadingMode::FixedTime => "fixed-time",
+            crate::lab::ReadingMode::Kinetic => "kinetic",
+        }
+        .into(),
+        model: test.model.code().into(),
+        wavelength_nm: test.wavelength_nm.to_string(),
+        linearity_limit: test
+            .linearity_limit
+            .map(|v| v.to_string())
+            .unwrap_or_default(),
+    });
+    let (reason, set_reason) = signal(String::new());
+    let (message, set_message) = signal(None::<String>);
+    let save = move |_| {
+        let why = reason.get_untracked();
+        if why.trim().is_empty() {
+            return set_message.set(Some("reason: say why the test is corrected".into()));
+        }
+        // Checked as a new test against the others (its own code is not a clash).
+        let mut others = lab.clone();
+        others.tests.retain(|t| t.meta.id != test.meta.id);
+        match form.get_untracked().into_test(&others, test.meta.clone()) {
+            Ok(parsed) => {
+                let mut corrected = test.clone();
+                corrected.code = parsed.code;
+                corrected.name = parsed.name;
+                corrected.unit = parsed.unit;
+                corrected.wavelength_nm = parsed.wavelength_nm;
+                corrected.linearity_limit = parsed.linearity_limit;
+                let mut changed = lab.clone();
+                if let Some(t) = changed
+                    .tests
+                    .iter_mut()
+                    .find(|t| t.meta.id == corrected.meta.id)
+                {
+                    *t = corrected;
+                }
+                set_message.set(None);
+                trail.amend.run(super::Change {
+                    lab: changed,
+                    reason: Some(why),
+                });
+            }
+            Err(e) => set_message.set(Some(e)),
+        }
+    };
+    let input = move |name: &'static str| {
+        view! {
+            <input size="12" data-testid=format!("correct-test-{name}")
+                prop:value=move || form.with(|f| match name {
+                    "name" => f.name.clone(),
+                    "unit" => f.unit.clone(),
+                    "wavelength" => f.wavelength_nm.clone(),
+                    _ => f.linearity_limit.clone(),
+                })
+                on:input=move |ev| {
+                    let v = event_target_value(&ev);
+                    set_form.update(|f| match name {
+                        "name" => f.name = v,
+                        "unit" => f.unit = v,
+                        "wavelength" => f.wavelength_nm = v,
+                        _ => f.linearity_limit = v,
+                    })
+                } />
+        }
+    };
+    view! {
+        <details class="correct">
+            <summary data-testid="correct-test">"correct"</summary>
+            <div class="form">
+                "name "{input("name")}" unit "{input("unit")}" nm "{input("wavelength")}
+                " linearity limit "{input("linearity")}<br/>
+                {reason_line(set_reason, save, message)}
             </div>
         </details>
     }

@@ -5,7 +5,7 @@
 import { test } from "node:test";
 import assert from "node:assert/strict";
 import { execSync } from "node:child_process";
-import { openApp, newProfile, byTestId, waitSaved } from "./helpers.mjs";
+import { openApp, newProfile, byTestId, waitSaved, waitReady } from "./helpers.mjs";
 
 /** Record a material opened now, named `name`. */
 async function addMaterial(page, name) {
@@ -187,6 +187,55 @@ test("a start that did not finish leads to the recovery screen, which opens the 
     await page.waitForSelector('[data-testid=save-state]:not([data-state="opening"])');
     await byTestId(page, "nav-materials").click();
     assert.match(await materialNames(page), /Reagent kept through a crash/);
+  } finally {
+    await context.close();
+  }
+});
+
+test("a corrected target keeps its earlier version and reason; a void needs a reason; the day's trail says who did what", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await initials(page, "sv");
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await waitSaved(page);
+    const level = byTestId(page, "setup-level").first();
+    await level.locator('[data-testid="correct-level"]').click();
+    await level.locator('[data-testid="correct-level-mean"]').fill("96,5");
+    await level.locator('[data-testid="save-correction"]').click();
+    assert.match(await level.locator('[data-testid="correction-message"]').innerText(), /reason/);
+    await level.locator('[data-testid="correction-reason"]').fill("new insert values");
+    await level.locator('[data-testid="save-correction"]').click();
+    await waitSaved(page);
+    await page.waitForFunction(() => /96\.5 ±/.test(document.querySelector('[data-testid="setup-level"]').textContent));
+    await byTestId(page, "setup-level").first().locator('[data-testid="show-history"]').click();
+    const versions = byTestId(page, "history-version");
+    assert.equal(await versions.count(), 2);
+    assert.match(await versions.nth(0).innerText(), /made control level \(version 1\).*mean 95/s);
+    assert.match(await versions.nth(1).innerText(), /SV corrected control level \(version 2\) — reason: new insert values.*mean 96\.5/s);
+    await byTestId(page, "close-history").click();
+
+    await byTestId(page, "nav-runs").click();
+    const card = byTestId(page, "runs-GLU");
+    const before = await card.locator('[data-testid="qc-run"]').count();
+    const run = card.locator('[data-testid="qc-run"]').first();
+    await run.locator('[data-testid="void"]').click();
+    await run.locator('[data-testid="confirm-void"]').click();
+    assert.match(await run.innerText(), /say why/);
+    await run.locator('[data-testid="void-reason"]').fill("control vial left open");
+    await run.locator('[data-testid="confirm-void"]').click();
+    await page.waitForFunction((n) => document.querySelectorAll('[data-testid="runs-GLU"] [data-testid="qc-run"]').length === n, before - 1);
+    await waitSaved(page);
+    await page.reload();
+    await waitReady(page);
+    assert.equal(await byTestId(page, "runs-GLU").locator('[data-testid="qc-run"]').count(), before - 1);
+
+    await byTestId(page, "nav-records").click();
+    const trail = await byTestId(page, "day-trail").innerText();
+    assert.match(trail, /SV corrected control level \(version 2\) — reason: new insert values/);
+    assert.match(trail, /SV voided QC run \(version 2\) — reason: control vial left open/);
+    assert.match(trail, /who worked: .*SV/);
+    assert.deepEqual(problems, []);
   } finally {
     await context.close();
   }
