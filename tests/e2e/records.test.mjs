@@ -10,7 +10,7 @@ import { openApp, newProfile, byTestId, waitSaved, waitReady } from "./helpers.m
 /** Record a material opened now, named `name`. */
 async function addMaterial(page, name) {
   await byTestId(page, "nav-materials").click();
-  await byTestId(page, "new-material").click();
+  if (!(await byTestId(page, "material-name").isVisible())) await byTestId(page, "new-material").click();
   await byTestId(page, "material-name").fill(name);
   await byTestId(page, "material-expiry").fill("2030-12");
   await byTestId(page, "material-days").fill("7");
@@ -236,6 +236,62 @@ test("a corrected target keeps its earlier version and reason; a void needs a re
     assert.match(trail, /SV voided QC run \(version 2\) — reason: control vial left open/);
     assert.match(trail, /who worked: .*SV/);
     assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("a full localStorage: the save is still durable, the screen says so and offers an export; nothing is lost on reload", async () => {
+  const profile = newProfile();
+  let { context, page } = await openApp(profile);
+  await initials(page, "fu");
+  await addMaterial(page, "Reagent before the store fills");
+  await waitSaved(page);
+  // Other pages opened from files fill the shared quota.
+  const filled = await page.evaluate(() => {
+    const block = "x".repeat(100_000);
+    let n = 0;
+    try { for (;;) { localStorage.setItem(`other-page.${n}`, block); n++; } } catch { /* full */ }
+    try { for (let k = 0; ; k++) localStorage.setItem(`other-page.small.${k}`, "x".repeat(500)); } catch { /* full */ }
+    return n;
+  });
+  assert.ok(filled > 10, `filled ${filled} blocks`);
+  await addMaterial(page, "Reagent after the store filled");
+  await page.waitForSelector('[data-testid=save-state][data-state="saved-durable-only"]');
+  assert.match(await byTestId(page, "storage-full").innerText(), /storage .* is full.*Export all records now/s);
+  await byTestId(page, "storage-full").locator('[data-testid="export-now"]').waitFor();
+  await context.close();
+  ({ context, page } = await openApp(profile));
+  try {
+    await byTestId(page, "nav-materials").click();
+    const text = await materialNames(page);
+    assert.match(text, /Reagent before the store fills/);
+    assert.match(text, /Reagent after the store filled/);
+  } finally {
+    await context.close();
+  }
+});
+
+test("a save interrupted between its chunk and its pointer leaves the earlier generation, and the leftover is swept", async () => {
+  const profile = newProfile();
+  let { context, page } = await openApp(profile);
+  await initials(page, "cr");
+  await addMaterial(page, "Reagent saved before the cut");
+  await waitSaved(page);
+  const before = await page.evaluate(() => Object.fromEntries(Object.entries(localStorage).filter(([k]) => k.startsWith("cuvette.lab."))));
+  // The next generation's chunk was written, then the power went before the pointer.
+  await page.evaluate(() => {
+    const k = Object.keys(localStorage).find((k) => /^cuvette\.lab\.c0\./.test(k));
+    localStorage.setItem("cuvette.lab.c0.g999", localStorage.getItem(k).slice(0, 40));
+  });
+  await context.close();
+  ({ context, page } = await openApp(profile));
+  try {
+    assert.match(await byTestId(page, "start-report").innerText(), /1 half-written chunk\(s\) of an interrupted save were removed/);
+    const after = await page.evaluate(() => Object.fromEntries(Object.entries(localStorage).filter(([k]) => k.startsWith("cuvette.lab."))));
+    assert.deepEqual(after, before);
+    await byTestId(page, "nav-materials").click();
+    assert.match(await materialNames(page), /Reagent saved before the cut/);
   } finally {
     await context.close();
   }
