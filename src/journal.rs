@@ -239,45 +239,115 @@ pub struct Change {
 
 /// What changed from `old` to `new`, record by record: new ids are created, changed
 /// content is corrected, ids that are gone are voided. Settings count as one record.
+/// Records are compared as they are first; only a record that differs is written out
+/// (so a save costs one pass over the lab, not a copy of it).
 pub fn changes(old: &Lab, new: &Lab) -> Vec<Change> {
-    let before: HashMap<(Kind, &str), Value> = records_of(old)
-        .into_iter()
-        .map(|(k, id, _, b)| ((k, id), b))
-        .collect();
-    let mut seen = std::collections::HashSet::new();
     let mut out = Vec::new();
-    for (kind, id, meta, body) in records_of(new) {
-        seen.insert((kind, id));
-        match before.get(&(kind, id)) {
+    let (a, b) = (Settings::of(old), Settings::of(new));
+    if a != b {
+        out.push(Change {
+            kind: Kind::Settings,
+            id: SETTINGS_ID.to_string(),
+            // Settings always exist (empty at first): every change is a correction.
+            action: Action::Correct,
+            body: serde_json::to_value(&b).ok(),
+            made: None,
+        });
+    }
+    diff_list(Kind::Test, &old.tests, &new.tests, &mut out);
+    diff_list(
+        Kind::ControlLevel,
+        &old.control_levels,
+        &new.control_levels,
+        &mut out,
+    );
+    diff_list(
+        Kind::ControlRun,
+        &old.control_runs,
+        &new.control_runs,
+        &mut out,
+    );
+    diff_list(Kind::Material, &old.materials, &new.materials, &mut out);
+    diff_list(
+        Kind::Calibration,
+        &old.calibrations,
+        &new.calibrations,
+        &mut out,
+    );
+    diff_list(
+        Kind::InstrumentEntry,
+        &old.instrument_log,
+        &new.instrument_log,
+        &mut out,
+    );
+    out
+}
+
+/// A record's content as the journal stores it: without `meta`.
+fn body_of<T: Serialize>(r: &T) -> Value {
+    let mut v = serde_json::to_value(r).unwrap_or(Value::Null);
+    if let Value::Object(m) = &mut v {
+        m.remove("meta");
+    }
+    v
+}
+
+fn diff_list<T: Serialize + PartialEq + crate::lab::Record>(
+    kind: Kind,
+    old: &[T],
+    new: &[T],
+    out: &mut Vec<Change>,
+) {
+    // Lists only ever grow at the end or change in place; pair by position first and
+    // fall back to a map of ids when the order differs.
+    let same_order = old.iter().zip(new).all(|(a, b)| a.meta().id == b.meta().id);
+    let by_id: HashMap<&str, &T> = if same_order {
+        HashMap::new()
+    } else {
+        old.iter().map(|r| (r.meta().id.as_str(), r)).collect()
+    };
+    for (k, r) in new.iter().enumerate() {
+        let before = if same_order {
+            old.get(k)
+        } else {
+            by_id.get(r.meta().id.as_str()).copied()
+        };
+        match before {
             None => out.push(Change {
                 kind,
-                id: id.to_string(),
+                id: r.meta().id.clone(),
                 action: Action::Create,
-                body: Some(body),
-                made: meta.map(|m| (m.created_at, m.by.clone())),
+                body: Some(body_of(r)),
+                made: Some((r.meta().created_at, r.meta().by.clone())),
             }),
-            Some(b) if *b != body => out.push(Change {
-                kind,
-                id: id.to_string(),
-                action: Action::Correct,
-                body: Some(body),
-                made: None,
-            }),
+            Some(o) if o != r => {
+                let body = body_of(r);
+                if body_of(o) != body {
+                    out.push(Change {
+                        kind,
+                        id: r.meta().id.clone(),
+                        action: Action::Correct,
+                        body: Some(body),
+                        made: None,
+                    });
+                }
+            }
             Some(_) => {}
         }
     }
-    for (kind, id, _, _) in records_of(old) {
-        if !seen.contains(&(kind, id)) {
+    if old.len() > new.len() || !same_order {
+        let kept: std::collections::HashSet<&str> =
+            new.iter().map(|r| r.meta().id.as_str()).collect();
+        for o in old.iter().filter(|o| !kept.contains(o.meta().id.as_str())) {
             out.push(Change {
                 kind,
-                id: id.to_string(),
+                id: o.meta().id.clone(),
                 action: Action::Void,
                 body: None,
                 made: None,
             });
         }
     }
-    out
 }
 
 /// The journal's end: the next sequence number and the hash to chain to.
@@ -523,7 +593,12 @@ fn apply(
         v: Option<Value>,
         seq: u64,
     ) -> Result<(), String> {
-        let at = list.iter().position(|r| r.meta().id == id);
+        // A create was checked against the versions already: no search for it.
+        let at = if action == Action::Create {
+            None
+        } else {
+            list.iter().position(|r| r.meta().id == id)
+        };
         match (action, v) {
             (Action::Void, _) => {
                 if let Some(k) = at {

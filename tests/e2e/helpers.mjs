@@ -59,14 +59,14 @@ export async function openApp(profile, file = singleFile, { now = DEFAULT_NOW, z
 }
 
 /** Wait until the app has opened its stores and shows the lab. */
-export async function waitReady(page) {
-  await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached", timeout: 20000 });
-  await page.waitForSelector('[data-testid=save-state]:not([data-state="opening"])', { timeout: 20000 });
+export async function waitReady(page, timeout = 20000) {
+  await page.waitForSelector("main [data-testid=view-calibration]", { state: "attached", timeout });
+  await page.waitForSelector('[data-testid=save-state]:not([data-state="opening"])', { timeout });
 }
 
 /** Wait until every change on screen is committed ("All saved"). */
-export async function waitSaved(page) {
-  await page.waitForSelector('[data-testid=save-state][data-state="saved"]', { timeout: 20000 });
+export async function waitSaved(page, timeout = 20000) {
+  await page.waitForSelector('[data-testid=save-state][data-state="saved"]', { timeout });
 }
 
 export const byTestId = (page, id) => page.locator(`[data-testid="${id}"]`);
