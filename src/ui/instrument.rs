@@ -32,7 +32,7 @@ pub fn InstrumentView(
             let limits = l.temperature_limits;
             view! {
                 <table>
-                    <thead><tr><th>"When"</th><th>"By"</th><th>"What"</th><th>"Reading"</th><th>"Note"</th></tr></thead>
+                    <thead><tr><th>"When"</th><th>"By"</th><th>"What"</th><th>"Reading"</th><th>"Note"</th><th class="no-print">"Record"</th></tr></thead>
                     <tbody>
                         {entries.into_iter().map(|e| entry_row(e, limits)).collect_view()}
                     </tbody>
@@ -119,6 +119,7 @@ fn entry_row(e: &InstrumentEntry, limits: Limits) -> impl IntoView {
             <td>{e.event.words()}</td>
             <td>{reading}</td>
             <td>{e.note.clone()}</td>
+            <td class="no-print"><super::records::HistoryButton id=e.meta.id.clone() /></td>
         </tr>
     }
 }

@@ -24,7 +24,7 @@ fn row(
     lot: String,
     by: String,
     u: &UsableUntil,
-    record: Option<(Lab, String)>,
+    record: Option<String>,
 ) -> impl IntoView {
     let class = match u.state {
         StabilityState::Ok => "state-ok",
@@ -40,8 +40,8 @@ fn row(
             <td>{stability::describe_left(u.hours_left)}</td>
             <td>{u.governed_by.describe()}</td>
             <td>{state_word(u.state)}{u.remarks.iter().map(|r| format!("; {r}")).collect::<String>()}</td>
-            <td class="no-print">{record.map(|(lab, id)| view! {
-                <super::records::HistoryButton id=id.clone() />" "<super::records::VoidButton lab=lab id=id />
+            <td class="no-print">{record.map(|id| view! {
+                <super::records::HistoryButton id=id.clone() />" "<super::records::VoidButton id=id />
             })}</td>
         </tr>
     }
@@ -69,7 +69,7 @@ pub fn MaterialsView(
                 .iter()
                 .map(|m| match stability::evaluate(&m.stability, now, &Local, WarningWindow::default()) {
                     Ok(r) => {
-                        let main = row(m.name.clone(), m.lot.clone(), m.meta.by.clone(), &r.material, Some((l.clone(), m.meta.id.clone())));
+                        let main = row(m.name.clone(), m.lot.clone(), m.meta.by.clone(), &r.material, Some(m.meta.id.clone()));
                         let per_analyte = r
                             .analytes
                             .iter()

@@ -154,6 +154,13 @@ pub(crate) struct Trail {
     pub shelf: ShelfCell,
 }
 
+impl Trail {
+    /// The lab as it is now (read when a correction is made, never held by a row).
+    pub fn current_lab(&self) -> Option<Lab> {
+        self.shelf.get_value().borrow().lab()
+    }
+}
+
 /// The whole app: the recovery screen if the last start failed, else the bench.
 #[component]
 pub fn App() -> impl IntoView {

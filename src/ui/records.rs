@@ -139,8 +139,6 @@ pub fn HistoryButton(
 /// keeps every earlier version).
 #[component]
 pub fn VoidButton(
-    /// The lab as it is.
-    lab: Lab,
     /// The record's id.
     id: String,
 ) -> impl IntoView {
@@ -153,7 +151,9 @@ pub fn VoidButton(
         if why.trim().is_empty() {
             return set_message.set(Some("say why this record is voided".into()));
         }
-        let mut changed = lab.clone();
+        let Some(mut changed) = trail.current_lab() else {
+            return;
+        };
         changed.remove_record(&id);
         trail.amend.run(Change {
             lab: changed,

@@ -68,7 +68,7 @@ fn TestRuns(
                         <td class="no-print">
                             <super::records::HistoryButton id=run.meta.id.clone() />
                             " "
-                            <super::records::VoidButton lab=lab.clone() id=run.meta.id.clone() />
+                            <super::records::VoidButton id=run.meta.id.clone() />
                         </td>
                     </tr>
                 }

@@ -37,7 +37,7 @@ pub fn SetupView(
                                     <li data-testid="setup-level">
                                         {text}" "
                                         <super::records::HistoryButton id=v.meta.id.clone() />
-                                        <CorrectLevel lab=l.clone() level=v.clone() />
+                                        <CorrectLevel level=v.clone() />
                                     </li>
                                 }
                             })
@@ -47,7 +47,7 @@ pub fn SetupView(
                                 <strong>{format!("{} {}", t.code, t.name)}</strong>
                                 {format!(" — {} nm, {}, {}", t.wavelength_nm, t.model.code(), t.unit)}" "
                                 <super::records::HistoryButton id=t.meta.id.clone() />
-                                <CorrectTest lab=l.clone() test=t.clone() />
+                                <CorrectTest test=t.clone() />
                                 <ul>{levels}</ul>
                                 <NewLevel lab=lab save=save technician=technician test_id=t.meta.id.clone() code=t.code.clone() />
                             </li>
@@ -255,7 +255,7 @@ fn reason_line(
 /// Correct a control level's name, lot or target; the reason is kept with the new
 /// version and the earlier one stays in the record's history.
 #[component]
-fn CorrectLevel(lab: Lab, level: crate::lab::ControlLevel) -> impl IntoView {
+fn CorrectLevel(level: crate::lab::ControlLevel) -> impl IntoView {
     let trail = expect_context::<super::Trail>();
     let (form, set_form) = signal(LevelForm {
         name: level.name.clone(),
@@ -275,7 +275,9 @@ fn CorrectLevel(lab: Lab, level: crate::lab::ControlLevel) -> impl IntoView {
             .into_level(&level.test_id, level.meta.clone())
         {
             Ok(corrected) => {
-                let mut changed = lab.clone();
+                let Some(mut changed) = trail.current_lab() else {
+                    return;
+                };
                 if let Some(l) = changed
                     .control_levels
                     .iter_mut()
@@ -325,7 +327,7 @@ fn CorrectLevel(lab: Lab, level: crate::lab::ControlLevel) -> impl IntoView {
 
 /// Correct a test's name, unit, wavelength or linearity limit, with a reason.
 #[component]
-fn CorrectTest(lab: Lab, test: crate::lab::TestSetup) -> impl IntoView {
+fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
     let trail = expect_context::<super::Trail>();
     let (form, set_form) = signal(TestForm {
         code: test.code.clone(),
@@ -352,6 +354,9 @@ fn CorrectTest(lab: Lab, test: crate::lab::TestSetup) -> impl IntoView {
             return set_message.set(Some("reason: say why the test is corrected".into()));
         }
         // Checked as a new test against the others (its own code is not a clash).
+        let Some(lab) = trail.current_lab() else {
+            return;
+        };
         let mut others = lab.clone();
         others.tests.retain(|t| t.meta.id != test.meta.id);
         match form.get_untracked().into_test(&others, test.meta.clone()) {

@@ -16,7 +16,7 @@ use rand::{Rng, SeedableRng};
 
 const QUOTA: f64 = 5_242_880.0;
 
-fn synthetic_lab(years: i64) -> Lab {
+fn synthetic_lab(days: i64) -> Lab {
     let mut rng = rand::rngs::StdRng::seed_from_u64(20261202);
     let mut id = || {
         let mut b = [0u8; 16];
@@ -48,7 +48,7 @@ fn synthetic_lab(years: i64) -> Lab {
         lab.tests.push(test);
     }
     let mut rng = rand::rngs::StdRng::seed_from_u64(7);
-    for day in 0..years * 365 {
+    for day in 0..days {
         for t in 0..20 {
             let at = start + Duration::days(day) + Duration::minutes(t);
             let levels = [
@@ -76,7 +76,14 @@ fn synthetic_lab(years: i64) -> Lab {
 }
 
 fn main() {
-    let lab = synthetic_lab(3);
+    // BENCH_DAYS sets the size (default 1095: the three years).
+    let days: i64 = std::env::var("BENCH_DAYS")
+        .ok()
+        .and_then(|y| y.parse().ok())
+        .unwrap_or(1095)
+        .max(1);
+    let years = days as f64 / 365.0;
+    let lab = synthetic_lab(days);
     let now: DateTime<Utc> = "2026-12-01T08:00:00Z".parse().expect("time");
     let entries = founding_entries(&lab, now, "BM");
     let results: usize = lab
@@ -89,7 +96,7 @@ fn main() {
     let pointer = mirror.write(&mut kv, &entries, None).expect("write");
     let chars = mirror.size(&kv) as f64;
     let per_result = chars / results as f64;
-    println!("synthetic lab: 20 tests x 2 levels daily, 3 years: {} runs, {results} QC results, {} entries", lab.control_runs.len(), entries.len());
+    println!("synthetic lab: 20 tests x 2 levels daily, {years:.2} years: {} runs, {results} QC results, {} entries", lab.control_runs.len(), entries.len());
     println!("localStorage: {chars:.0} characters, {per_result:.1} per QC result (trail included)");
     println!(
         "years of such a lab in the {QUOTA:.0}-character file:// quota: {:.1}",
@@ -122,7 +129,7 @@ fn main() {
     }
     saves.sort();
     let save = saves[saves.len() / 2];
-    println!("native, one run: start-up replay {replay_time:?}; one save (diff, entries, mirror) median {save:?} of 50; replay/save = {:.1}", replay_time.as_secs_f64() / save.as_secs_f64());
+    println!("native, one run: start-up replay {replay_time:?}; one save on top of it (diff, entries, mirror) median {save:?} of 50; replay/save = {:.1}", replay_time.as_secs_f64() / save.as_secs_f64());
     let store: serde_json::Map<String, serde_json::Value> = kv
         .keys()
         .into_iter()
