@@ -474,6 +474,14 @@ impl Lab {
         metas.chain(events).max()
     }
 
+    /// How many QC results the lab holds (one per control level measured in a run).
+    pub fn qc_result_count(&self) -> usize {
+        self.control_runs
+            .iter()
+            .map(|r| r.values.iter().flatten().count())
+            .sum()
+    }
+
     /// Take out the record with this id, whatever its kind (a void: the journal keeps
     /// its earlier versions).
     pub fn remove_record(&mut self, id: &str) {

@@ -430,11 +430,7 @@ mod tests {
         // measured on the demo lab (78 runs, 155 results).
         let entries = demo_entries();
         let lab = replay(&entries, None, &[]).lab;
-        let results: usize = lab
-            .control_runs
-            .iter()
-            .map(|r| r.values.iter().flatten().count())
-            .sum();
+        let results: usize = lab.qc_result_count();
         let mut kv = MemoryStore::default();
         let m = Mirror::new("cuvette.demo.");
         m.write(&mut kv, &entries, None).unwrap();

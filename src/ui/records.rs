@@ -274,14 +274,7 @@ pub fn StorageMeter(
     move || {
         lab.track();
         let (all, ours, left, months) = storage_figures(clock.get(), first_entry_time(&trail));
-        let results: usize = lab.with(|l| {
-            l.as_ref().map_or(0, |l| {
-                l.control_runs
-                    .iter()
-                    .map(|r| r.values.iter().flatten().count())
-                    .sum()
-            })
-        });
+        let results: usize = lab.with(|l| l.as_ref().map_or(0, |l| l.qc_result_count()));
         let per = (results > 0).then(|| ours as f64 / results as f64);
         view! {
             <section class="card" data-testid="storage-meter">

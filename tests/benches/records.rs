@@ -86,11 +86,7 @@ fn main() {
     let lab = synthetic_lab(days);
     let now: DateTime<Utc> = "2026-12-01T08:00:00Z".parse().expect("time");
     let entries = founding_entries(&lab, now, "BM");
-    let results: usize = lab
-        .control_runs
-        .iter()
-        .map(|r| r.values.iter().flatten().count())
-        .sum();
+    let results: usize = lab.qc_result_count();
     let mut kv = MemoryStore::default();
     let mirror = Mirror::new("cuvette.lab.");
     let pointer = mirror.write(&mut kv, &entries, None).expect("write");
