@@ -128,6 +128,19 @@ impl Entry {
         hex(&Sha256::digest(text.as_bytes()))
     }
 
+    /// Whether `other` is the same change made once (the same record, action, time,
+    /// maker, reason and content), wherever it sits in a journal: numbering, version,
+    /// links and hash may differ after it was renumbered behind another tab's entries.
+    pub fn same_change(&self, other: &Entry) -> bool {
+        self.id == other.id
+            && self.at == other.at
+            && self.by == other.by
+            && self.action == other.action
+            && self.kind == other.kind
+            && self.reason == other.reason
+            && self.body == other.body
+    }
+
     /// Set `hash` from the content.
     pub fn seal(mut self) -> Entry {
         self.hash = self.computed_hash();

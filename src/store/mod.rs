@@ -21,6 +21,8 @@ const VIEW_KEY: &str = "cuvette.view";
 const BOOK_KEY: &str = "cuvette.book";
 const BOOT_KEY: &str = "cuvette.boot";
 const ASIDE_KEY: &str = "cuvette.aside";
+/// Per tab and book: changes on screen not yet committed to the journal.
+const PENDING_KEY: &str = "cuvette.pending";
 
 /// The quota Chromium gives all `file://` pages together, in characters of keys and
 /// values (measured, see DEVELOPERS.md); other pages opened from files share it.
@@ -129,6 +131,46 @@ pub fn set_set_aside(book: Book, seqs: &[u64]) -> Result<(), StoreError> {
         &format!("{ASIDE_KEY}.{}", book.code()),
         &serde_json::to_string(seqs).unwrap_or_default(),
     )
+}
+
+thread_local! {
+    /// This tab's own name for its pending key (two tabs never share one).
+    static TAB: String = random_bytes().iter().map(|b| format!("{b:02x}")).take(6).collect();
+}
+
+fn pending_prefix(book: Book) -> String {
+    format!("{PENDING_KEY}.{}.", book.code())
+}
+
+/// Keep this tab's uncommitted entries of `book` in localStorage (written at once, so a
+/// reload or a closed tab keeps them); an empty list removes the key. Best effort: when
+/// the browser refuses, the save state already says "not saved".
+pub fn write_pending(book: Book, entries: &[crate::journal::Entry]) {
+    let key = TAB.with(|t| format!("{}{t}", pending_prefix(book)));
+    let mut kv = Local;
+    if entries.is_empty() {
+        kv.remove(&key);
+    } else if let Ok(text) = serde_json::to_string(entries) {
+        let _ = kv.set(&key, &text);
+    }
+}
+
+/// Take every pending list of `book` that a closed page left (any tab's), removing
+/// the keys; the caller adopts the entries the journal does not already hold.
+pub fn take_pending(book: Book) -> Vec<crate::journal::Entry> {
+    let prefix = pending_prefix(book);
+    let mut kv = Local;
+    let mut out = Vec::new();
+    for key in kv.keys().into_iter().filter(|k| k.starts_with(&prefix)) {
+        if let Some(list) = kv
+            .get(&key)
+            .and_then(|t| serde_json::from_str::<Vec<crate::journal::Entry>>(&t).ok())
+        {
+            out.extend(list);
+        }
+        kv.remove(&key);
+    }
+    out
 }
 
 /// Mark a start as begun. Returns what went wrong last time if the previous start

@@ -74,6 +74,7 @@ impl Shelf {
         self.replay.extend(&entries, None, &[]);
         let n = entries.len();
         self.unsaved.extend(entries);
+        self.keep_pending();
         Ok(n)
     }
 
@@ -82,6 +83,7 @@ impl Shelf {
         let entries = journal::founding_entries(lab, at, by);
         self.replay.extend(&entries, None, &[]);
         self.unsaved.extend(entries);
+        self.keep_pending();
     }
 
     /// Write the localStorage copy; false when the browser refused.
@@ -124,7 +126,9 @@ impl Shelf {
         }
     }
 
-    /// Take in entries another tab committed, and renumber ours after them.
+    /// Take in entries another tab committed, and renumber ours after them (an entry of
+    /// ours that the other tab already committed, taken from our pending copy after a
+    /// reload, is dropped: it is in the journal once).
     fn take_in(&mut self, newer: Vec<Entry>) {
         if newer.is_empty() {
             return;
@@ -132,7 +136,16 @@ impl Shelf {
         self.entries.extend(newer);
         self.replay = journal::replay(&self.entries, None, &self.skip);
         let ours = std::mem::take(&mut self.unsaved);
+        self.adopt(ours);
+    }
+
+    /// Put `ours` after the committed entries as unsaved, renumbered and re-linked,
+    /// leaving out any change the journal already holds.
+    fn adopt(&mut self, ours: Vec<Entry>) {
         for mut e in ours {
+            if self.entries.iter().any(|c| c.same_change(&e)) {
+                continue;
+            }
             e.seq = self.replay.tip.next_seq;
             e.prev = self.replay.tip.hash.clone();
             e.version = self.replay.versions.get(&e.id).map_or(1, |(v, _)| v + 1);
@@ -140,6 +153,13 @@ impl Shelf {
             self.replay.extend(std::slice::from_ref(&e), None, &[]);
             self.unsaved.push(e);
         }
+        self.keep_pending();
+    }
+
+    /// Copy the unsaved entries to localStorage at once (a synchronous write), so a
+    /// reload or a closed tab before the journal's commit does not lose them.
+    fn keep_pending(&self) {
+        super::write_pending(self.book, &self.unsaved);
     }
 }
 
@@ -206,6 +226,19 @@ pub async fn open(book: Book, db: Option<Db>) -> (Shelf, Vec<String>) {
             "the localStorage copy could not be repaired: this browser's storage is full".into(),
         );
     }
+    // Changes that were on screen but not yet committed when a page closed.
+    let pending = super::take_pending(book);
+    if !pending.is_empty() {
+        let before = shelf.unsaved.len();
+        shelf.adopt(pending);
+        let n = shelf.unsaved.len() - before;
+        if n > 0 {
+            notes.push(format!(
+                "{n} change(s) were still being saved when the page was last closed; they \
+                 were recovered and are saved now"
+            ));
+        }
+    }
     (shelf, notes)
 }
 
@@ -234,6 +267,7 @@ pub async fn flush(cell: &Rc<RefCell<Shelf>>) -> Option<Saved> {
                     let mut s = cell.borrow_mut();
                     s.unsaved.drain(..batch.len());
                     s.entries.extend(batch);
+                    s.keep_pending();
                     if !s.write_mirror(false) {
                         outcome = Saved::DurableOnly;
                     }
@@ -268,6 +302,7 @@ pub async fn flush(cell: &Rc<RefCell<Shelf>>) -> Option<Saved> {
                 s.entries.extend(batch.iter().cloned());
                 if s.write_mirror(false) {
                     s.unsaved.drain(..batch.len());
+                    s.keep_pending();
                     outcome = Saved::LocalOnly;
                 } else {
                     s.entries.truncate(before);
@@ -310,6 +345,7 @@ pub async fn refresh(cell: &Rc<RefCell<Shelf>>) -> bool {
 /// Remove a book from both stores (the demo switched off).
 pub async fn clear(book: Book, db: Option<&Db>) -> Result<(), StoreError> {
     Mirror::new(book.prefix()).clear(&mut Local);
+    super::take_pending(book);
     if let Some(db) = db {
         db.clear(book.store_name()).await?;
     }

@@ -84,6 +84,10 @@ fn TestCalibration(
                     <td>{format!("{what} {value:.4}")}</td>
                     <td>{change}</td>
                     <td class=outcome_class(c.outcome)>{outcome_words(c.outcome)}</td>
+                    <td class="no-print">
+                        <super::records::HistoryButton id=c.meta.id.clone() />" "
+                        <super::records::VoidButton id=c.meta.id.clone() />
+                    </td>
                 </tr>
             }
         })
@@ -117,17 +121,18 @@ fn TestCalibration(
             <Show when=move || empty>
                 <p class="empty">"No calibrations recorded yet."</p>
             </Show>
-            <Show when=move || !empty>
+            {(!empty).then(|| view! {
                 <table>
                     <thead>
                         <tr>
                             <th>"When"</th><th>"By"</th><th>"Reagent blank"</th>
                             <th>"Top calibrator"</th><th>"Sensitivity"</th><th>"Change"</th><th>"Verdict"</th>
+                            <th class="no-print">"Record"</th>
                         </tr>
                     </thead>
-                    <tbody>{rows.clone()}</tbody>
+                    <tbody>{rows}</tbody>
                 </table>
-            </Show>
+            })}
             <div class="trends">
                 {trends.into_iter().map(|t| view! { <super::chart::TrendChart series=t /> }).collect_view()}
             </div>

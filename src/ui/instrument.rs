@@ -119,7 +119,10 @@ fn entry_row(e: &InstrumentEntry, limits: Limits) -> impl IntoView {
             <td>{e.event.words()}</td>
             <td>{reading}</td>
             <td>{e.note.clone()}</td>
-            <td class="no-print"><super::records::HistoryButton id=e.meta.id.clone() /></td>
+            <td class="no-print">
+                <super::records::HistoryButton id=e.meta.id.clone() />" "
+                <super::records::VoidButton id=e.meta.id.clone() />
+            </td>
         </tr>
     }
 }

@@ -287,10 +287,15 @@ fn Bench() -> impl IntoView {
             found.push(format!("Set aside, not used: {}", a.why));
         }
         found.extend(opened.replay.gaps.iter().cloned());
+        let recovered = !opened.unsaved.is_empty();
         shelf.set_value(std::rc::Rc::new(std::cell::RefCell::new(opened)));
         set_notes.set(found);
         set_save_state.set(SaveState::Saved(Utc::now()));
         show();
+        if recovered {
+            set_save_state.set(SaveState::Saving);
+            flush();
+        }
         tabs.set_value(store::Tabs::open(move |news| {
             let cell = shelf.get_value();
             if cell.borrow().book != news {
@@ -359,6 +364,7 @@ fn Bench() -> impl IntoView {
                     }
                 }
             }
+            let unsaved = !opened.unsaved.is_empty();
             shelf.set_value(std::rc::Rc::new(std::cell::RefCell::new(opened)));
             set_notes.set(notes);
             set_book.set(target);
@@ -366,7 +372,7 @@ fn Bench() -> impl IntoView {
                 set_problem.set(Some(e.0));
             }
             set_problem.set(None);
-            if fresh_demo {
+            if unsaved {
                 set_save_state.set(SaveState::Saving);
             }
             show();

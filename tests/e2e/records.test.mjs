@@ -235,6 +235,27 @@ test("a corrected target keeps its earlier version and reason; a void needs a re
     assert.match(trail, /SV corrected control level \(version 2\) — reason: new insert values/);
     assert.match(trail, /SV voided QC run \(version 2\) — reason: control vial left open/);
     assert.match(trail, /who worked: .*SV/);
+    // Calibrations and instrument log entries are voided the same way.
+    await byTestId(page, "nav-calibration").click();
+    const cals = byTestId(page, "calibration-GLU").locator('[data-testid="calibration-row"]');
+    const calsBefore = await cals.count();
+    await cals.first().locator('[data-testid="void"]').click();
+    await cals.first().locator('[data-testid="void-reason"]').fill("wrong calibrator lot entered");
+    await cals.first().locator('[data-testid="confirm-void"]').click();
+    await waitSaved(page);
+    await page.waitForFunction((n) => document.querySelectorAll('[data-testid="calibration-GLU"] [data-testid="calibration-row"]').length === n, calsBefore - 1);
+    await byTestId(page, "nav-instrument").click();
+    const log = byTestId(page, "instrument-row");
+    const logBefore = await log.count();
+    await log.first().locator('[data-testid="void"]').click();
+    await log.first().locator('[data-testid="void-reason"]').fill("entered twice");
+    await log.first().locator('[data-testid="confirm-void"]').click();
+    await waitSaved(page);
+    await page.waitForFunction((n) => document.querySelectorAll('[data-testid="instrument-row"]').length === n, logBefore - 1);
+    await byTestId(page, "nav-records").click();
+    const trail2 = await byTestId(page, "day-trail").innerText();
+    assert.match(trail2, /SV voided calibration \(version 2\) — reason: wrong calibrator lot entered/);
+    assert.match(trail2, /SV voided instrument log entry \(version 2\) — reason: entered twice/);
     assert.deepEqual(problems, []);
   } finally {
     await context.close();
@@ -267,6 +288,45 @@ test("a full localStorage: the save is still durable, the screen says so and off
     const text = await materialNames(page);
     assert.match(text, /Reagent before the store fills/);
     assert.match(text, /Reagent after the store filled/);
+  } finally {
+    await context.close();
+  }
+});
+
+test("a change still being saved when the page is reloaded is recovered, not lost", async () => {
+  const profile = newProfile();
+  let { context, page } = await openApp(profile);
+  try {
+    await initials(page, "pr");
+    await addMaterial(page, "Reagent saved normally");
+    await waitSaved(page);
+    // The journal's next commit never finishes (a slow disk, a page closed mid-save).
+    await page.evaluate(() => {
+      const open = IDBDatabase.prototype.transaction;
+      IDBDatabase.prototype.transaction = function (stores, mode, options) {
+        const tx = open.call(this, stores, mode, options);
+        if (mode === "readwrite") {
+          for (const p of ["oncomplete", "onerror", "onabort"]) Object.defineProperty(tx, p, { set() {}, get() { return null; } });
+          tx.abort();
+        }
+        return tx;
+      };
+    });
+    await addMaterial(page, "Reagent on screen while saving");
+    await page.waitForSelector('[data-testid=save-state][data-state="saving"]');
+    await page.reload();
+    await waitSaved(page);
+    assert.match(await byTestId(page, "start-report").innerText(), /1 change\(s\) were still being saved when the page was last closed/);
+    await byTestId(page, "nav-materials").click();
+    const text = await materialNames(page);
+    assert.match(text, /Reagent saved normally/);
+    assert.match(text, /Reagent on screen while saving/);
+    // Saved for real now: a further reload shows it once, with nothing pending.
+    await page.reload();
+    await waitSaved(page);
+    await byTestId(page, "nav-materials").click();
+    assert.equal((await materialNames(page)).match(/Reagent on screen while saving/g).length, 1);
+    assert.deepEqual(await page.evaluate(() => Object.keys(localStorage).filter((k) => k.startsWith("cuvette.pending."))), []);
   } finally {
     await context.close();
   }
