@@ -31,7 +31,7 @@ pub fn numbers(text: &str, what: &str) -> Result<Vec<f64>, String> {
             if !v.is_finite() {
                 return Err(format!("{what}: {p:?} is not a finite number"));
             }
-            out.push(v);
+            out.push(crate::engine::plausible::VALUE.check(what, v)?);
         }
     }
     Ok(out)
@@ -154,6 +154,7 @@ impl MaterialForm {
         meta: crate::lab::RecordMeta,
         opened_at: chrono::DateTime<chrono::Utc>,
     ) -> Result<crate::lab::MaterialRecord, String> {
+        use crate::engine::plausible::STABILITY_DAYS;
         use crate::engine::stability::{AnalyteStability, ExpiryDate, Material};
         use crate::lab::MaterialKind;
         let kind = match self.kind.as_str() {
@@ -172,8 +173,8 @@ impl MaterialForm {
         }
         let expiry: ExpiryDate = self.expiry.parse().map_err(|e| format!("expiry: {e}"))?;
         let in_use_days = one_number(&self.in_use_days, "stability after opening")?
-            .filter(|d| *d > 0.0)
             .ok_or("stability after opening: give the days from the insert, a number above 0")?;
+        STABILITY_DAYS.check("stability after opening", in_use_days)?;
         let mut analytes = Vec::new();
         for part in self
             .analytes
@@ -184,9 +185,10 @@ impl MaterialForm {
             let (analyte, days) = part.rsplit_once(char::is_whitespace).ok_or_else(|| {
                 format!("analytes: {part:?}; write the analyte and its days, e.g. \"ALT 5\"")
             })?;
-            let days = one_number(days, &format!("analytes: {analyte}"))?
-                .filter(|d| *d > 0.0)
-                .ok_or_else(|| format!("analytes: {analyte}: give its days, a number above 0"))?;
+            let what = format!("analytes: {analyte}");
+            let days = one_number(days, &what)?
+                .ok_or_else(|| format!("{what}: give its days, a number above 0"))?;
+            STABILITY_DAYS.check(&what, days)?;
             analytes.push(AnalyteStability {
                 analyte: analyte.trim().to_string(),
                 in_use_hours: Some(days * 24.0),
@@ -240,6 +242,7 @@ impl TestForm {
         meta: crate::lab::RecordMeta,
     ) -> Result<crate::lab::TestSetup, String> {
         use crate::engine::calibration::ModelKind;
+        use crate::engine::plausible;
         use crate::lab::ReadingMode;
         let code = self.code.trim().to_uppercase();
         if code.is_empty() || code.len() > 8 {
@@ -271,11 +274,13 @@ impl TestForm {
         let model = ModelKind::from_code(&self.model)
             .ok_or_else(|| format!("calibration: {:?} is not a model", self.model))?;
         let wavelength_nm = one_number(&self.wavelength_nm, "wavelength")?
-            .filter(|w| (300.0..=1000.0).contains(w))
-            .ok_or("wavelength: give the filter or wavelength in nm, between 300 and 1000")?;
+            .ok_or("wavelength: give the filter or wavelength in nm, between 200 and 1100")?;
+        plausible::WAVELENGTH_NM.check("wavelength", wavelength_nm)?;
         let linearity_limit = one_number(&self.linearity_limit, "linearity limit")?;
-        if linearity_limit.is_some_and(|l| l <= 0.0) {
-            return Err("linearity limit: must be above 0, or left empty".into());
+        if let Some(l) = linearity_limit {
+            plausible::SD
+                .check("linearity limit", l)
+                .map_err(|e| format!("{e} (or leave it empty)"))?;
         }
         Ok(crate::lab::TestSetup {
             meta,
@@ -318,9 +323,8 @@ impl LevelForm {
         }
         let mean = one_number(&self.mean, "mean")?
             .ok_or("mean: give the target mean (from the insert until the lab has its own)")?;
-        let sd = one_number(&self.sd, "SD")?
-            .filter(|s| *s > 0.0)
-            .ok_or("SD: give the target SD, a number above 0")?;
+        let sd = one_number(&self.sd, "SD")?.ok_or("SD: give the target SD, a number above 0")?;
+        crate::engine::plausible::SD.check("SD", sd)?;
         Ok(crate::lab::ControlLevel {
             meta,
             test_id: test_id.to_string(),
@@ -383,7 +387,51 @@ mod form_tests {
         assert!(bad
             .into_test(&lab, meta())
             .unwrap_err()
-            .contains("between 300 and 1000"));
+            .contains("from 200 to 1100 nm"));
+    }
+
+    /// Numbers no lab would type (common-practice bounds of `engine::plausible`) are
+    /// refused with the field named, never stored: the extremes a damaged file or a
+    /// slip of the keyboard brings.
+    #[test]
+    fn extreme_numbers_are_refused_naming_the_field() {
+        for typed in ["1e308", "100000000", "2e7", "-2e7"] {
+            let e = numbers(typed, "control value").unwrap_err();
+            assert!(e.starts_with("control value: "), "{e}");
+        }
+        assert_eq!(numbers("9999999", "v"), Ok(vec![9_999_999.0]));
+        let material = |days: &str, analytes: &str| MaterialForm {
+            kind: "reagent".into(),
+            name: "R1".into(),
+            expiry: "2030-12".into(),
+            in_use_days: days.into(),
+            analytes: analytes.into(),
+            ..Default::default()
+        };
+        let at = chrono::DateTime::UNIX_EPOCH;
+        for days in ["100000000", "3651", "0", "-1"] {
+            let e = material(days, "").into_material(meta(), at).unwrap_err();
+            assert!(e.starts_with("stability after opening"), "{e}");
+        }
+        assert!(material("3650", "").into_material(meta(), at).is_ok());
+        let e = material("30", "ALT 1000000000")
+            .into_material(meta(), at)
+            .unwrap_err();
+        assert!(e.starts_with("analytes: ALT"), "{e}");
+        let level = |mean: &str, sd: &str| LevelForm {
+            name: "N".into(),
+            lot: "L".into(),
+            mean: mean.into(),
+            sd: sd.into(),
+        };
+        for (mean, sd, field) in [
+            ("1e308", "1e308", "mean"),
+            ("95", "0", "SD"),
+            ("95", "-1", "SD"),
+        ] {
+            let e = level(mean, sd).into_level("t", meta()).unwrap_err();
+            assert!(e.starts_with(field), "{e}");
+        }
     }
 
     #[test]

@@ -419,6 +419,9 @@ pub fn entries_for(
                 c.action.words()
             )));
         }
+        if let Some(body) = &c.body {
+            check_body(c.kind, body).map_err(|e| ChangeError(format!("not saved: {e}")))?;
+        }
         let (entry_by, created) = match (&c.made, c.action) {
             (Some((made_at, made_by)), Action::Create) if !made_by.is_empty() => {
                 (made_by.clone(), (*made_at < at).then_some(*made_at))
@@ -444,6 +447,43 @@ pub fn entries_for(
         out.push(entry);
     }
     Ok(out)
+}
+
+/// A record's content (without `meta`) within the bounds of `engine::plausible` and
+/// its own fields' ranges; the message names the field.
+pub fn check_body(kind: Kind, body: &Value) -> Result<(), String> {
+    use crate::lab::{self, Record};
+    crate::engine::plausible::check_json(body)?;
+    fn typed<T: serde::de::DeserializeOwned + Record>(body: &Value) -> Result<(), String> {
+        let mut v = body.clone();
+        if let Value::Object(m) = &mut v {
+            let meta = RecordMeta {
+                id: String::new(),
+                created_at: DateTime::UNIX_EPOCH,
+                changed_at: DateTime::UNIX_EPOCH,
+                by: String::new(),
+                version: 1,
+            };
+            m.insert(
+                "meta".into(),
+                serde_json::to_value(meta).map_err(|e| e.to_string())?,
+            );
+        }
+        let record: T =
+            serde_json::from_value(v).map_err(|e| format!("the content cannot be read ({e})"))?;
+        record.check()
+    }
+    match kind {
+        Kind::Settings => serde_json::from_value::<Settings>(body.clone())
+            .map(|_| ())
+            .map_err(|e| format!("the lab settings cannot be read ({e})")),
+        Kind::Test => typed::<lab::TestSetup>(body),
+        Kind::ControlLevel => typed::<lab::ControlLevel>(body),
+        Kind::ControlRun => typed::<lab::ControlRun>(body),
+        Kind::Material => typed::<lab::MaterialRecord>(body),
+        Kind::Calibration => typed::<lab::CalibrationRecord>(body),
+        Kind::InstrumentEntry => typed::<lab::InstrumentEntry>(body),
+    }
 }
 
 /// An entry the replay could not use: kept in the journal, listed, never deleted.
@@ -620,8 +660,13 @@ fn apply(
                 Ok(())
             }
             (_, Some(v)) => {
+                crate::engine::plausible::check_json(&v)
+                    .map_err(|x| format!("entry {seq} holds a value no lab records: {x}"))?;
                 let record: T = serde_json::from_value(v)
                     .map_err(|x| format!("entry {seq}: the content cannot be read ({x})"))?;
+                record
+                    .check()
+                    .map_err(|x| format!("entry {seq} holds a value no lab records: {x}"))?;
                 match at {
                     Some(k) => list[k] = record,
                     None => list.push(record),
@@ -638,6 +683,10 @@ fn apply(
     };
     match e.kind {
         Kind::Settings => {
+            if let Some(v) = &v {
+                crate::engine::plausible::check_json(v)
+                    .map_err(|x| format!("entry {}: the lab settings: {x}", e.seq))?;
+            }
             let s: Settings = serde_json::from_value(v.unwrap_or(Value::Null))
                 .map_err(|x| format!("entry {}: the lab settings cannot be read ({x})", e.seq))?;
             lab.lab_name = s.lab_name;

@@ -11,6 +11,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::engine::acceptance::{AcceptanceLimits, Outcome};
 use crate::engine::calibration::{Curve, ModelKind, ReplicateUse, Weighting};
+use crate::engine::plausible;
 use crate::engine::qc::{Rule, RuleSetting};
 use crate::engine::readings::{Direction, Limits};
 
@@ -197,6 +198,11 @@ pub struct ControlHistory<'a> {
 /// Anything with a [`RecordMeta`].
 pub trait Record {
     fn meta(&self) -> &RecordMeta;
+    /// The values of this record that need a narrower range than the general bound
+    /// every number has ([`plausible::check_json`]); a message names the field.
+    fn check(&self) -> Result<(), String> {
+        Ok(())
+    }
 }
 
 macro_rules! record {
@@ -204,6 +210,9 @@ macro_rules! record {
         $(impl Record for $t {
             fn meta(&self) -> &RecordMeta {
                 &self.meta
+            }
+            fn check(&self) -> Result<(), String> {
+                self.check_fields()
             }
         })*
     };
@@ -216,6 +225,97 @@ record!(
     CalibrationRecord,
     InstrumentEntry
 );
+
+/// A record as JSON within the general bounds, then its own fields' ranges.
+pub fn check_record<T: Record + Serialize>(r: &T) -> Result<(), String> {
+    let v = serde_json::to_value(r).map_err(|e| e.to_string())?;
+    plausible::check_json(&v)?;
+    r.check()
+}
+
+impl TestSetup {
+    fn check_fields(&self) -> Result<(), String> {
+        let at = |f: &str| format!("test {}: {f}", self.code);
+        plausible::WAVELENGTH_NM.check(&at("wavelength"), self.wavelength_nm)?;
+        if let Some(l) = self.linearity_limit {
+            plausible::SD.check(&at("linearity limit"), l)?;
+        }
+        for code in [&self.code, &self.unit] {
+            if code.chars().count() > 40 {
+                return Err(at("code and unit are short (at most 40 characters)"));
+            }
+        }
+        Ok(())
+    }
+}
+
+impl ControlLevel {
+    fn check_fields(&self) -> Result<(), String> {
+        let at = |f: &str| format!("control level {}: {f}", self.name);
+        plausible::VALUE.check(&at("mean"), self.mean)?;
+        plausible::SD.check(&at("SD"), self.sd)?;
+        Ok(())
+    }
+}
+
+impl ControlRun {
+    fn check_fields(&self) -> Result<(), String> {
+        if self.level_ids.len() != self.values.len() {
+            return Err(format!(
+                "QC run of {}: {} levels but {} values",
+                self.run_at.format("%Y-%m-%d %H:%M"),
+                self.level_ids.len(),
+                self.values.len()
+            ));
+        }
+        Ok(())
+    }
+}
+
+impl MaterialRecord {
+    fn check_fields(&self) -> Result<(), String> {
+        let st = &self.stability;
+        let at = |f: &str| format!("material {}: {f}", self.name);
+        let hours = |f: &str, h: Option<f64>| match h {
+            Some(h) => plausible::STABILITY_HOURS.check(&at(f), h).map(|_| ()),
+            None => Ok(()),
+        };
+        hours("stability after opening", st.in_use_hours)?;
+        hours("stability on board", st.on_board_hours)?;
+        if let Some(f) = &st.frozen {
+            hours("stability frozen", Some(f.frozen_hours))?;
+            hours("stability after thawing", Some(f.after_thaw_hours))?;
+        }
+        for a in &st.analytes {
+            hours(
+                &format!("{}: stability after opening", a.analyte),
+                a.in_use_hours,
+            )?;
+            hours(
+                &format!("{}: stability after thawing", a.analyte),
+                a.after_thaw_hours,
+            )?;
+        }
+        Ok(())
+    }
+}
+
+impl CalibrationRecord {
+    fn check_fields(&self) -> Result<(), String> {
+        Ok(())
+    }
+}
+
+impl InstrumentEntry {
+    fn check_fields(&self) -> Result<(), String> {
+        match (self.event, self.value) {
+            (InstrumentEvent::TemperatureCheck, Some(v)) => plausible::TEMPERATURE_C
+                .check("instrument log: temperature", v)
+                .map(|_| ()),
+            _ => Ok(()),
+        }
+    }
+}
 
 /// What an import did, per kind of record.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
@@ -493,61 +593,26 @@ impl Lab {
         self.instrument_log.retain(|r| r.meta.id != id);
     }
 
-    /// Records holding values no lab would record (what a damaged store or an old
-    /// unchecked form could leave): (id, why). Plausible ranges, common practice:
-    /// stabilities up to 10 years, targets and results finite and below 10^7, an SD
-    /// above zero, wavelengths 200–1100 nm.
+    /// Records holding values no lab would record (what a damaged store or file, or an
+    /// older unchecked form, could leave): (id, why), by [`check_record`] and the ranges
+    /// of [`plausible`] (common practice).
     pub fn implausible_records(&self) -> Vec<(String, String)> {
-        const MAX_HOURS: f64 = 87_600.0;
-        let hours_ok =
-            |h: Option<f64>| h.is_none_or(|h| h.is_finite() && (0.0..=MAX_HOURS).contains(&h));
-        let value_ok = |v: f64| v.is_finite() && v.abs() < 1e7;
+        fn each<T: Record + Serialize>(list: &[T], out: &mut Vec<(String, String)>) {
+            for r in list {
+                if let Err(e) = check_record(r) {
+                    out.push((r.meta().id.clone(), e));
+                }
+            }
+        }
         let mut out = Vec::new();
-        for l in &self.control_levels {
-            if !value_ok(l.mean) || !value_ok(l.sd) || l.sd <= 0.0 {
-                out.push((
-                    l.meta.id.clone(),
-                    format!("control level {}: mean {} and SD {}", l.name, l.mean, l.sd),
-                ));
-            }
-        }
-        for r in &self.control_runs {
-            if r.values.iter().flatten().any(|v| !value_ok(*v)) {
-                out.push((
-                    r.meta.id.clone(),
-                    "a QC run with a value out of range".into(),
-                ));
-            }
-        }
-        for m in &self.materials {
-            let st = &m.stability;
-            let frozen = st.frozen.as_ref();
-            let ok = hours_ok(st.in_use_hours)
-                && hours_ok(st.on_board_hours)
-                && hours_ok(frozen.map(|f| f.frozen_hours))
-                && hours_ok(frozen.map(|f| f.after_thaw_hours))
-                && st
-                    .analytes
-                    .iter()
-                    .all(|a| hours_ok(a.in_use_hours) && hours_ok(a.after_thaw_hours));
-            if !ok {
-                out.push((
-                    m.meta.id.clone(),
-                    format!("material {}: a stability beyond 10 years", m.name),
-                ));
-            }
-        }
-        for t in &self.tests {
-            if !(200.0..=1100.0).contains(&t.wavelength_nm) {
-                out.push((
-                    t.meta.id.clone(),
-                    format!("test {}: wavelength {} nm", t.code, t.wavelength_nm),
-                ));
-            }
-        }
+        each(&self.tests, &mut out);
+        each(&self.control_levels, &mut out);
+        each(&self.control_runs, &mut out);
+        each(&self.materials, &mut out);
+        each(&self.calibrations, &mut out);
+        each(&self.instrument_log, &mut out);
         out
     }
-
     /// Control levels of a test, in the order they were set up.
     pub fn levels_of(&self, test_id: &str) -> Vec<&ControlLevel> {
         self.control_levels

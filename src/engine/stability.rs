@@ -285,16 +285,29 @@ impl fmt::Display for StabilityError {
 
 impl std::error::Error for StabilityError {}
 
+/// A stability in hours as a duration; `check_hours` has bounded it, and a value that
+/// slipped past (never expected) becomes "no time at all" rather than an overflow.
 fn hours(h: f64) -> Duration {
-    Duration::milliseconds((h * 3_600_000.0).round() as i64)
+    if super::plausible::STABILITY_HOURS.contains(h) {
+        Duration::milliseconds((h * 3_600_000.0).round() as i64)
+    } else {
+        Duration::zero()
+    }
+}
+
+/// `t` plus a stability, or the end of the calendar where the sum would leave it.
+fn after(t: DateTime<Utc>, h: f64) -> DateTime<Utc> {
+    t.checked_add_signed(hours(h))
+        .unwrap_or(DateTime::<Utc>::MAX_UTC)
 }
 
 fn check_hours(name: &str, h: Option<f64>) -> Result<(), StabilityError> {
     match h {
-        Some(v) if !(v.is_finite() && v > 0.0) => Err(StabilityError(format!(
-            "{name} must be a number of hours above 0 (it is {v}); copy it from the insert"
-        ))),
-        _ => Ok(()),
+        Some(v) => super::plausible::STABILITY_HOURS
+            .check(name, v)
+            .map(|_| ())
+            .map_err(|e| StabilityError(format!("{e} (copy it from the insert)"))),
+        None => Ok(()),
     }
 }
 
@@ -319,7 +332,7 @@ pub fn evaluate<Tz: TimeZone>(
     let mut remarks = Vec::new();
     let mut common: Vec<Candidate> = vec![(maker, Limit::MakerExpiry, None)];
     if let (Some(since), Some(h)) = (m.on_board_since, m.on_board_hours) {
-        common.push((since + hours(h), Limit::OnBoard, Some(h)));
+        common.push((after(since, h), Limit::OnBoard, Some(h)));
     }
     if m.in_use_hours.is_some() && m.opened_at.is_none() {
         remarks.push("not opened yet: the in-use stability starts when it is opened".to_string());
@@ -333,7 +346,7 @@ pub fn evaluate<Tz: TimeZone>(
     if let Some(f) = &m.frozen {
         check_hours("frozen_hours", Some(f.frozen_hours))?;
         check_hours("after_thaw_hours", Some(f.after_thaw_hours))?;
-        let frozen_limit = f.frozen_at + hours(f.frozen_hours);
+        let frozen_limit = after(f.frozen_at, f.frozen_hours);
         common.push((frozen_limit, Limit::Frozen, None));
         if let Some(t) = f.thawed_at {
             if t < f.frozen_at {
@@ -355,10 +368,10 @@ pub fn evaluate<Tz: TimeZone>(
     let material_only = |in_use: Option<f64>, after_thaw: Option<f64>| -> Vec<Candidate> {
         let mut v = common.clone();
         if let (Some(opened), Some(h)) = (m.opened_at, in_use) {
-            v.push((opened + hours(h), Limit::InUse, Some(h)));
+            v.push((after(opened, h), Limit::InUse, Some(h)));
         }
         if let (Some(t), Some(h)) = (thawed_at, after_thaw) {
-            v.push((t + hours(h), Limit::AfterThaw, Some(h)));
+            v.push((after(t, h), Limit::AfterThaw, Some(h)));
         }
         v
     };
@@ -378,10 +391,10 @@ pub fn evaluate<Tz: TimeZone>(
         )?;
         let mut c = material_only(m.in_use_hours, material_after_thaw);
         if let (Some(opened), Some(h)) = (m.opened_at, a.in_use_hours) {
-            c.push((opened + hours(h), Limit::InUse, Some(h)));
+            c.push((after(opened, h), Limit::InUse, Some(h)));
         }
         if let (Some(t), Some(h)) = (thawed_at, a.after_thaw_hours) {
-            c.push((t + hours(h), Limit::AfterThaw, Some(h)));
+            c.push((after(t, h), Limit::AfterThaw, Some(h)));
         }
         analytes.push((a.analyte.clone(), pick(c, now, warning, remarks.clone())));
     }
