@@ -22,6 +22,13 @@ Reads ONE JSON request on stdin, writes ONE JSON answer on stdout, exit 0.
 Bad input: exit 2 and {"error": "..."} naming the field. Indices in answers count
 from 0 (runs[0] is the first run).
 
+Check a records file (a backup or a day's records) without opening the app:
+  cuvette-calc check-backup < FILE
+  -> {"scope","lab_name","records":{kind: n},"versions","first","last",
+      "days_covered","chain"} and exit 0, or exit 2 and {"error": "..."} naming the
+     entry or field that is wrong (a changed entry, a broken chain, another program's
+     JSON).
+
 Operations ("op"):
 
   fit            {"op":"fit","model":"factor|linear|linear-through-origin|quadratic|4pl|5pl",
@@ -94,6 +101,18 @@ Operations ("op"):
   convert        {"op":"convert","analyte":"GLU","value":..,"from":"mg/dL","to":"mmol/L"}
                  -> {"value": ..}
 "#;
+
+/// `cuvette-calc check-backup`: check a records file (a backup or a day file) and
+/// summarise it; exit 0, or exit 2 with `{"error": …}` naming the place.
+pub fn check_backup(text: &str) -> (i32, String) {
+    match crate::exchange::read(text, usize::MAX) {
+        Ok(c) => (
+            0,
+            serde_json::to_string_pretty(&c.summary).unwrap_or_default(),
+        ),
+        Err(e) => (2, json!({ "error": e.0 }).to_string()),
+    }
+}
 
 /// Answer a request: (exit code, JSON text).
 pub fn run(input: &str) -> (i32, String) {

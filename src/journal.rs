@@ -41,10 +41,13 @@ pub enum Kind {
     Material,
     Calibration,
     InstrumentEntry,
+    /// Something that happened to the records as a whole (an import, an archive),
+    /// kept in the trail; it changes no record.
+    Event,
 }
 
 impl Kind {
-    pub const ALL: [Kind; 7] = [
+    pub const ALL: [Kind; 8] = [
         Kind::Settings,
         Kind::Test,
         Kind::ControlLevel,
@@ -52,6 +55,7 @@ impl Kind {
         Kind::Material,
         Kind::Calibration,
         Kind::InstrumentEntry,
+        Kind::Event,
     ];
 
     /// The kind in the lab's words.
@@ -64,6 +68,7 @@ impl Kind {
             Kind::Material => "material",
             Kind::Calibration => "calibration",
             Kind::InstrumentEntry => "instrument log entry",
+            Kind::Event => "records event",
         }
     }
 }
@@ -89,6 +94,7 @@ impl Action {
 
 /// One journal entry: one version of one record.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct Entry {
     /// Position in the journal, from 1, without gaps.
     pub seq: u64,
@@ -483,7 +489,17 @@ pub fn check_body(kind: Kind, body: &Value) -> Result<(), String> {
         Kind::Material => typed::<lab::MaterialRecord>(body),
         Kind::Calibration => typed::<lab::CalibrationRecord>(body),
         Kind::InstrumentEntry => typed::<lab::InstrumentEntry>(body),
+        Kind::Event => serde_json::from_value::<Event>(body.clone())
+            .map(|_| ())
+            .map_err(|e| format!("the records event cannot be read ({e})")),
     }
+}
+
+/// The body of a [`Kind::Event`] entry: what happened, in words.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Event {
+    pub what: String,
 }
 
 /// An entry the replay could not use: kept in the journal, listed, never deleted.
@@ -628,7 +644,7 @@ fn apply(
             .body
             .clone()
             .ok_or_else(|| format!("entry {} has no content", e.seq))?;
-        if e.kind != Kind::Settings {
+        if !matches!(e.kind, Kind::Settings | Kind::Event) {
             let Value::Object(m) = &mut v else {
                 return Err(format!("entry {}: the content is not a record", e.seq));
             };
@@ -699,6 +715,13 @@ fn apply(
         Kind::Material => put(&mut lab.materials, e.action, &e.id, v, e.seq)?,
         Kind::Calibration => put(&mut lab.calibrations, e.action, &e.id, v, e.seq)?,
         Kind::InstrumentEntry => put(&mut lab.instrument_log, e.action, &e.id, v, e.seq)?,
+        Kind::Event => {
+            let v = v.unwrap_or(Value::Null);
+            crate::engine::plausible::check_json(&v)
+                .map_err(|x| format!("entry {}: {x}", e.seq))?;
+            serde_json::from_value::<Event>(v)
+                .map_err(|x| format!("entry {}: the records event cannot be read ({x})", e.seq))?;
+        }
     }
     versions.insert(e.id.clone(), (e.version, e.hash.clone()));
     Ok(())

@@ -8,6 +8,7 @@
 pub mod calc;
 pub mod engine;
 pub mod entry;
+pub mod exchange;
 pub mod export;
 pub mod journal;
 pub mod lab;

@@ -135,3 +135,45 @@ fn qc_through_the_cli() {
         "{viol}"
     );
 }
+
+fn check_backup(input: &[u8]) -> (i32, Value) {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_cuvette-calc"))
+        .arg("check-backup")
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .spawn()
+        .expect("run cuvette-calc check-backup");
+    child.stdin.take().unwrap().write_all(input).unwrap();
+    let out = child.wait_with_output().unwrap();
+    let v: Value = serde_json::from_slice(&out.stdout).expect("JSON on stdout");
+    (out.status.code().unwrap_or(-1), v)
+}
+
+/// The committed example backup checks; a tampered copy, broken UTF-8 and another
+/// program's JSON exit 2 with the place named.
+#[test]
+fn check_backup_summarises_a_valid_file_and_names_the_place_in_a_bad_one() {
+    let text = include_str!("../demo-data/demo-backup.json");
+    let (code, v) = check_backup(text.as_bytes());
+    assert_eq!(code, 0, "{v}");
+    assert_eq!(v["scope"], "backup");
+    assert!(v["chain"].as_str().unwrap().starts_with("intact"));
+    assert!(v["records"]["QC run"].as_u64().unwrap() > 10);
+    assert!(v["days_covered"].as_u64().unwrap() >= 3);
+    let tampered = text.replacen("\"by\":\"", "\"by\":\"X", 3);
+    let (code, v) = check_backup(tampered.as_bytes());
+    assert_eq!(code, 2);
+    assert!(v["error"].as_str().unwrap().starts_with("entry "), "{v}");
+    let (code, v) = check_backup(&[0x7b, 0xff, 0xfe, 0x7d]);
+    assert_eq!(code, 2);
+    assert!(v["error"].as_str().unwrap().contains("UTF-8"), "{v}");
+    let (code, v) = check_backup(br#"{"name":"x","version":"1.0.0","dependencies":{}}"#);
+    assert_eq!(code, 2);
+    assert!(
+        v["error"]
+            .as_str()
+            .unwrap()
+            .contains("not a Cuvette records file"),
+        "{v}"
+    );
+}

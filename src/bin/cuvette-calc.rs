@@ -8,12 +8,15 @@ fn main() {
         print!("{}", cuvette::calc::HELP);
         return;
     }
+    let check_backup = std::env::args().nth(1).as_deref() == Some("check-backup");
     let mut input = String::new();
     let (code, out) = match std::io::stdin().read_to_string(&mut input) {
+        Ok(_) if check_backup => cuvette::calc::check_backup(&input),
         Ok(_) => cuvette::calc::run(&input),
         Err(e) => (
             2,
-            serde_json::json!({ "error": format!("stdin could not be read: {e}") }).to_string(),
+            serde_json::json!({ "error": format!("stdin could not be read as UTF-8 text: {e}") })
+                .to_string(),
         ),
     };
     let mut stdout = std::io::stdout();
