@@ -1,59 +1,95 @@
-//! Exports for spreadsheets: the lab's QC results and calibrations as CSV, one row per
-//! result, with ISO 8601 times, the engine's decision for each run and the record id
-//! (so a row can be traced back to its record). Plain Rust, tested natively.
+//! Records as tables: for spreadsheets (CSV through the csv crate, RFC 4180) and for the
+//! printed day sheet, one table per kind of record — QC results with their decisions
+//! and the rules broken, calibrations with their verdicts, materials opened, the
+//! instrument log, and the trail. Times are ISO 8601 in the lab's local time with its
+//! offset; each row carries the record id so it can be traced back.
+//!
+//! A spreadsheet runs a cell that begins with `=`, `+`, `-`, `@`, a tab or a carriage
+//! return as a formula. Every such cell is written with a leading `'` (the usual
+//! neutralising mark), unless it is a plain number (a negative result is a number, not a
+//! formula). Plain Rust, tested natively.
 
-use chrono::SecondsFormat;
+use std::borrow::Cow;
+
+use chrono::{DateTime, NaiveDate, SecondsFormat, TimeZone, Utc};
 
 use crate::engine::acceptance;
 use crate::engine::qc;
+use crate::journal::{self, Entry};
 use crate::lab::Lab;
 
-fn writer() -> csv::Writer<Vec<u8>> {
-    csv::WriterBuilder::new().from_writer(Vec::new())
+/// One table: a file (`slug`) and a section of the day sheet (`title`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Table {
+    pub slug: &'static str,
+    pub title: &'static str,
+    pub headers: Vec<&'static str>,
+    pub rows: Vec<Vec<String>>,
 }
 
-fn finish(w: csv::Writer<Vec<u8>>) -> Result<String, String> {
+/// A cell as a spreadsheet may safely read it (see the module note).
+pub fn neutralise(cell: &str) -> Cow<'_, str> {
+    let risky = cell.starts_with(['=', '+', '-', '@', '\t', '\r']);
+    let number = cell.trim().parse::<f64>().is_ok_and(f64::is_finite);
+    if risky && !number {
+        Cow::Owned(format!("'{cell}"))
+    } else {
+        Cow::Borrowed(cell)
+    }
+}
+
+/// The table as CSV (RFC 4180: header row, quoted where needed, CRLF line ends).
+pub fn to_csv(t: &Table) -> Result<String, String> {
+    let mut w = csv::WriterBuilder::new()
+        .terminator(csv::Terminator::CRLF)
+        .from_writer(Vec::new());
+    let err = |e: csv::Error| format!("the CSV could not be written: {e}");
+    w.write_record(&t.headers).map_err(err)?;
+    for row in &t.rows {
+        w.write_record(row.iter().map(|c| neutralise(c).into_owned()))
+            .map_err(err)?;
+    }
     let bytes = w
         .into_inner()
         .map_err(|e| format!("the CSV could not be written: {e}"))?;
     String::from_utf8(bytes).map_err(|e| format!("the CSV is not text: {e}"))
 }
 
+fn time<Tz: TimeZone>(t: DateTime<Utc>, tz: &Tz) -> String
+where
+    Tz::Offset: std::fmt::Display,
+{
+    t.with_timezone(tz)
+        .to_rfc3339_opts(SecondsFormat::Secs, true)
+}
+
+/// Which records a table takes, by their time.
+pub type Keep<'a> = &'a dyn Fn(DateTime<Utc>) -> bool;
+
 /// Every control result: test, level, lot, run time, value, target, z, the run's
-/// decision, who ran it, and the run's record id.
-pub fn qc_results_csv(lab: &Lab) -> Result<String, String> {
-    let mut w = writer();
-    let err = |e: csv::Error| format!("the CSV could not be written: {e}");
-    w.write_record([
-        "test",
-        "level",
-        "lot",
-        "run_at",
-        "value",
-        "unit",
-        "target_mean",
-        "target_sd",
-        "z",
-        "decision",
-        "rules_broken",
-        "by",
-        "record_id",
-    ])
-    .map_err(err)?;
+/// decision and the rules broken, who ran it, and the run's record id.
+pub fn qc_results<Tz: TimeZone>(lab: &Lab, keep: Keep, tz: &Tz) -> Result<Table, String>
+where
+    Tz::Offset: std::fmt::Display,
+{
+    let mut rows = Vec::new();
     for t in &lab.tests {
         let h = lab.control_history(&t.meta.id);
         let verdicts = qc::evaluate(&h.targets, &h.values, &t.qc_rules).map_err(|e| e.0)?;
         for ((run, values), verdict) in h.runs.iter().zip(&h.values).zip(&verdicts) {
+            if !keep(run.run_at) {
+                continue;
+            }
             let broken: Vec<&str> = verdict.violations.iter().map(|v| v.rule.code()).collect();
             for (k, v) in values.iter().enumerate() {
                 let Some(v) = v else { continue };
                 let level = h.levels[k];
                 let target = h.targets[k];
-                w.write_record([
+                rows.push(vec![
                     t.code.clone(),
                     level.name.clone(),
                     level.lot.clone(),
-                    run.run_at.to_rfc3339_opts(SecondsFormat::Secs, true),
+                    time(run.run_at, tz),
                     v.to_string(),
                     t.unit.clone(),
                     target.mean.to_string(),
@@ -63,50 +99,286 @@ pub fn qc_results_csv(lab: &Lab) -> Result<String, String> {
                     broken.join(" "),
                     run.meta.by.clone(),
                     run.meta.id.clone(),
-                ])
-                .map_err(err)?;
+                ]);
             }
         }
     }
-    finish(w)
+    Ok(Table {
+        slug: "qc-results",
+        title: "QC results",
+        headers: vec![
+            "test",
+            "level",
+            "lot",
+            "run_at",
+            "value",
+            "unit",
+            "target_mean",
+            "target_sd",
+            "z",
+            "decision",
+            "rules_broken",
+            "by",
+            "record_id",
+        ],
+        rows,
+    })
 }
 
-/// Every calibration: test, time, model, sensitivity, verdict, who, record id.
-pub fn calibrations_csv(lab: &Lab) -> Result<String, String> {
-    let mut w = writer();
-    let err = |e: csv::Error| format!("the CSV could not be written: {e}");
-    w.write_record([
-        "test",
-        "performed_at",
-        "model",
-        "sensitivity",
-        "value",
-        "verdict",
-        "by",
-        "record_id",
-    ])
-    .map_err(err)?;
+/// Every calibration: test, time, model, sensitivity, verdict and its reasons, who.
+pub fn calibrations<Tz: TimeZone>(lab: &Lab, keep: Keep, tz: &Tz) -> Table
+where
+    Tz::Offset: std::fmt::Display,
+{
+    let mut rows = Vec::new();
     for t in &lab.tests {
         for c in lab.calibrations_of(&t.meta.id) {
+            if !keep(c.performed_at) {
+                continue;
+            }
             let (value, what) = acceptance::sensitivity(&c.curve);
             let verdict = serde_json::to_value(c.outcome)
                 .ok()
                 .and_then(|v| v.as_str().map(str::to_string))
                 .unwrap_or_default();
-            w.write_record([
+            rows.push(vec![
                 t.code.clone(),
-                c.performed_at.to_rfc3339_opts(SecondsFormat::Secs, true),
+                time(c.performed_at, tz),
                 c.model.code().to_string(),
                 what.to_string(),
                 value.to_string(),
                 verdict,
+                c.findings.join("; "),
                 c.meta.by.clone(),
                 c.meta.id.clone(),
-            ])
-            .map_err(err)?;
+            ]);
         }
     }
-    finish(w)
+    Table {
+        slug: "calibrations",
+        title: "Calibrations",
+        headers: vec![
+            "test",
+            "performed_at",
+            "model",
+            "sensitivity",
+            "value",
+            "verdict",
+            "findings",
+            "by",
+            "record_id",
+        ],
+        rows,
+    }
+}
+
+/// Materials opened (or reconstituted): kind, name, lot, maker's expiry, when opened,
+/// the stability after opening in days, who.
+pub fn materials_opened<Tz: TimeZone>(lab: &Lab, keep: Keep, tz: &Tz) -> Table
+where
+    Tz::Offset: std::fmt::Display,
+{
+    let rows = lab
+        .materials
+        .iter()
+        .filter(|m| m.stability.opened_at.is_some_and(keep))
+        .map(|m| {
+            let kind = serde_json::to_value(m.kind)
+                .ok()
+                .and_then(|v| v.as_str().map(str::to_string))
+                .unwrap_or_default();
+            vec![
+                kind,
+                m.name.clone(),
+                m.lot.clone(),
+                m.stability.expiry.to_string(),
+                m.stability.opened_at.map_or(String::new(), |t| time(t, tz)),
+                m.stability
+                    .in_use_hours
+                    .map_or(String::new(), |h| format!("{}", h / 24.0)),
+                m.meta.by.clone(),
+                m.meta.id.clone(),
+            ]
+        })
+        .collect();
+    Table {
+        slug: "materials",
+        title: "Materials opened",
+        headers: vec![
+            "kind",
+            "name",
+            "lot",
+            "maker_expiry",
+            "opened_at",
+            "stable_days_after_opening",
+            "by",
+            "record_id",
+        ],
+        rows,
+    }
+}
+
+/// The instrument log: time, what, reading, note, who.
+pub fn instrument_log<Tz: TimeZone>(lab: &Lab, keep: Keep, tz: &Tz) -> Table
+where
+    Tz::Offset: std::fmt::Display,
+{
+    let rows = lab
+        .instrument_log
+        .iter()
+        .filter(|e| keep(e.at))
+        .map(|e| {
+            vec![
+                time(e.at, tz),
+                e.event.words().to_string(),
+                e.value.map_or(String::new(), |v| v.to_string()),
+                e.note.clone(),
+                e.meta.by.clone(),
+                e.meta.id.clone(),
+            ]
+        })
+        .collect();
+    Table {
+        slug: "instrument-log",
+        title: "Instrument log",
+        headers: vec!["at", "event", "reading", "note", "by", "record_id"],
+        rows,
+    }
+}
+
+/// What an entry says about its record, in a few words (the trail's summary).
+pub fn entry_summary(e: &Entry) -> String {
+    let Some(b) = &e.body else {
+        return String::new();
+    };
+    let field = |k: &str| {
+        b.get(k)
+            .map(|v| v.to_string().trim_matches('"').to_string())
+    };
+    [
+        field("what"),
+        field("code"),
+        field("name"),
+        field("lot"),
+        field("mean").map(|m| format!("mean {m}")),
+        field("sd").map(|m| format!("SD {m}")),
+        field("values").map(|v| format!("values {v}")),
+        field("event"),
+        field("value")
+            .filter(|v| v != "null")
+            .map(|v| format!("value {v}")),
+        field("lab_name"),
+    ]
+    .into_iter()
+    .flatten()
+    .collect::<Vec<_>>()
+    .join(", ")
+}
+
+/// The trail: every journal entry, in order.
+pub fn trail<Tz: TimeZone>(entries: &[&Entry], tz: &Tz) -> Table
+where
+    Tz::Offset: std::fmt::Display,
+{
+    let rows = entries
+        .iter()
+        .map(|e| {
+            vec![
+                time(e.at, tz),
+                e.by.clone(),
+                e.action.words().to_string(),
+                e.kind.words().to_string(),
+                e.version.to_string(),
+                e.reason.clone().unwrap_or_default(),
+                entry_summary(e),
+                e.id.clone(),
+                e.hash.clone(),
+            ]
+        })
+        .collect();
+    Table {
+        slug: "trail",
+        title: "Trail (every change, by whom)",
+        headers: vec![
+            "at",
+            "by",
+            "action",
+            "record",
+            "version",
+            "reason",
+            "summary",
+            "record_id",
+            "sha256",
+        ],
+        rows,
+    }
+}
+
+/// The day's tables (local to `tz`), in the order of the day sheet.
+pub fn day_tables<Tz: TimeZone>(
+    lab: &Lab,
+    entries: &[Entry],
+    day: NaiveDate,
+    tz: &Tz,
+) -> Result<Vec<Table>, String>
+where
+    Tz::Offset: std::fmt::Display,
+{
+    let on_day = |t: DateTime<Utc>| t.with_timezone(tz).date_naive() == day;
+    Ok(vec![
+        qc_results(lab, &on_day, tz)?,
+        calibrations(lab, &on_day, tz),
+        materials_opened(lab, &on_day, tz),
+        instrument_log(lab, &on_day, tz),
+        trail(&journal::day(entries, day, tz), tz),
+    ])
+}
+
+/// Initials of everyone with an entry on the day, sorted.
+pub fn who_worked<Tz: TimeZone>(entries: &[Entry], day: NaiveDate, tz: &Tz) -> Vec<String> {
+    let who: std::collections::BTreeSet<String> = journal::day(entries, day, tz)
+        .iter()
+        .map(|e| e.by.clone())
+        .filter(|b| !b.is_empty())
+        .collect();
+    who.into_iter().collect()
+}
+
+/// A file name: `cuvette-<lab>-<what>-<date>.<ext>`, the lab's name reduced to letters,
+/// digits and hyphens.
+pub fn file_name(lab_name: &str, what: &str, date: NaiveDate, ext: &str) -> String {
+    let mut lab: String = lab_name
+        .chars()
+        .map(|c| {
+            if c.is_alphanumeric() {
+                c.to_ascii_lowercase()
+            } else {
+                '-'
+            }
+        })
+        .collect();
+    while lab.contains("--") {
+        lab = lab.replace("--", "-");
+    }
+    let lab: String = lab.trim_matches('-').chars().take(40).collect();
+    let lab = if lab.is_empty() { "lab".into() } else { lab };
+    format!("cuvette-{lab}-{what}-{}.{ext}", date.format("%Y-%m-%d"))
+}
+
+/// Every QC result of the lab as CSV (times in `tz`).
+pub fn qc_results_csv<Tz: TimeZone>(lab: &Lab, tz: &Tz) -> Result<String, String>
+where
+    Tz::Offset: std::fmt::Display,
+{
+    to_csv(&qc_results(lab, &|_| true, tz)?)
+}
+
+/// Every calibration of the lab as CSV (times in `tz`).
+pub fn calibrations_csv<Tz: TimeZone>(lab: &Lab, tz: &Tz) -> Result<String, String>
+where
+    Tz::Offset: std::fmt::Display,
+{
+    to_csv(&calibrations(lab, &|_| true, tz))
 }
 
 #[cfg(test)]
@@ -118,7 +390,7 @@ mod tests {
     #[test]
     fn qc_csv_has_one_row_per_result() {
         let lab = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
-        let text = qc_results_csv(&lab).unwrap();
+        let text = qc_results_csv(&lab, &Utc).unwrap();
         let mut r = csv::Reader::from_reader(text.as_bytes());
         let headers = r.headers().unwrap().clone();
         assert_eq!(&headers[3], "run_at");
@@ -135,10 +407,58 @@ mod tests {
         assert!(rows
             .iter()
             .any(|row| &row[9] == "reject" && row[10].contains("2-2s")));
-        let cal = calibrations_csv(&lab).unwrap();
+        let cal = calibrations_csv(&lab, &Utc).unwrap();
         assert_eq!(
             csv::Reader::from_reader(cal.as_bytes()).records().count(),
             lab.calibrations.len()
+        );
+    }
+
+    /// The formula-injection cases of the issue (and OWASP's list of trigger
+    /// characters): each is written with a leading `'`; numbers stay numbers.
+    #[test]
+    fn cells_a_spreadsheet_would_run_are_neutralised() {
+        for bad in [
+            "=1+1",
+            "+cmd|' /C calc'!A0",
+            "-2+3",
+            "@SUM(A1:A2)",
+            "\t=1",
+            "\r=1",
+            "=HYPERLINK(\"http://x\")",
+        ] {
+            assert_eq!(neutralise(bad), format!("'{bad}"), "{bad:?}");
+        }
+        for fine in ["-0.512", "+5", "1e-3", "GLU", "Level 1", "", "a=b"] {
+            assert_eq!(neutralise(fine), fine);
+        }
+        // Through the CSV writer and back with the csv reader.
+        let t = Table {
+            slug: "t",
+            title: "t",
+            headers: vec!["a", "b"],
+            rows: vec![vec!["=1+1".into(), "-0.5".into()]],
+        };
+        let text = to_csv(&t).unwrap();
+        assert!(text.ends_with("\r\n"));
+        let row = csv::Reader::from_reader(text.as_bytes())
+            .records()
+            .next()
+            .unwrap()
+            .unwrap();
+        assert_eq!((&row[0], &row[1]), ("'=1+1", "-0.5"));
+    }
+
+    #[test]
+    fn file_names_carry_the_lab_and_the_iso_date() {
+        let d = NaiveDate::from_ymd_opt(2026, 11, 27).unwrap();
+        assert_eq!(
+            file_name("Hill Clinic / Lab #2", "day", d, "json"),
+            "cuvette-hill-clinic-lab-2-day-2026-11-27.json"
+        );
+        assert_eq!(
+            file_name("  ", "qc-results", d, "csv"),
+            "cuvette-lab-qc-results-2026-11-27.csv"
         );
     }
 }

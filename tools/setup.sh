@@ -38,13 +38,14 @@ need_build_tools() {
 }
 
 need_test_tools() {
-  if ! command -v chromium >/dev/null || ! command -v chromedriver >/dev/null; then
-    say "installing Debian's chromium and chromium-driver"
+  if ! command -v chromium >/dev/null || ! command -v chromedriver >/dev/null \
+    || ! command -v pdftotext >/dev/null; then
+    say "installing Debian's chromium, chromium-driver and poppler-utils (the day sheet's PDF)"
     as_root apt-get update -q
-    DEBIAN_FRONTEND=noninteractive as_root apt-get install -y -q chromium chromium-driver
+    DEBIAN_FRONTEND=noninteractive as_root apt-get install -y -q chromium chromium-driver poppler-utils
   fi
-  if ! python3 -c "import numpy, scipy" 2>/dev/null; then
-    say "installing the reference libraries numpy and scipy"
+  if ! python3 -c "import numpy, scipy, jsonschema" 2>/dev/null; then
+    say "installing the reference libraries numpy, scipy and jsonschema"
     python3 -m pip install -q -r tools/reference-requirements.txt
   fi
   if ! (cd tests/e2e && npm ls --depth=0 >/dev/null 2>&1); then

@@ -92,8 +92,9 @@ pub const LARGEST_VALUE: f64 = 10_000_000.0;
 
 /// Any measured value, concentration, mean or reading.
 pub const VALUE: Range = Range::closed(-LARGEST_VALUE, LARGEST_VALUE, "");
-/// A control's target SD: above 0.
-pub const SD: Range = Range::above(0.0, LARGEST_VALUE, "");
+/// A control's target SD, or a linearity limit: at least 0.000001 (a z-score divides by
+/// it, so it must not be vanishingly small).
+pub const SD: Range = Range::closed(1e-6, LARGEST_VALUE, "");
 /// A stability: above 0, at most 10 years.
 pub const STABILITY_HOURS: Range = Range::above(0.0, 87_600.0, "hours");
 /// A stability as inserts state it.
@@ -156,7 +157,11 @@ mod tests {
     fn ranges_name_the_field_and_refuse_the_edges_that_are_out() {
         assert_eq!(SD.check("SD", 2.5), Ok(2.5));
         let e = SD.check("SD", 0.0).unwrap_err();
-        assert!(e.starts_with("SD: 0 is outside") && e.contains("above 0 to 10 000 000"));
+        assert!(
+            e.starts_with("SD: 0 is outside") && e.contains("from 0.000001 to 10 000 000"),
+            "{e}"
+        );
+        assert!(SD.check("SD", 1e-320).is_err());
         assert!(SD.check("SD", -1.0).is_err());
         assert!(STABILITY_HOURS.check("in_use_hours", 1e308).is_err());
         assert!(STABILITY_HOURS.check("in_use_hours", f64::NAN).is_err());

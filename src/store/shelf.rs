@@ -86,6 +86,21 @@ impl Shelf {
         self.keep_pending();
     }
 
+    /// Every entry, committed or not, in order (what the screen shows).
+    pub fn entries_all(&self) -> Vec<Entry> {
+        let mut all = self.entries.clone();
+        all.extend(self.unsaved.iter().cloned());
+        all
+    }
+
+    /// Entries made elsewhere and checked (an import), already numbered after the tip:
+    /// shown at once, not yet saved.
+    pub fn append(&mut self, entries: Vec<Entry>) {
+        self.replay.extend(&entries, None, &[]);
+        self.unsaved.extend(entries);
+        self.keep_pending();
+    }
+
     /// Write the localStorage copy; false when the browser refused.
     fn write_mirror(&mut self, fresh: bool) -> bool {
         let mirror = self.mirror();

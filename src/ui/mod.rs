@@ -6,6 +6,7 @@
 
 mod calibration;
 pub(crate) mod chart;
+mod exchange;
 mod instrument;
 mod materials;
 mod records;
@@ -147,6 +148,8 @@ pub struct Change {
 pub(crate) struct Trail {
     /// Commit a correction or void with its reason.
     pub amend: Callback<Change>,
+    /// Commit entries an import prepared (numbered after the current tip).
+    pub append: Callback<Vec<crate::journal::Entry>>,
     /// The record whose history is shown.
     pub history_of: RwSignal<Option<String>>,
     /// Bumped whenever the journal changed (for the trail and history views).
@@ -178,6 +181,7 @@ fn Bench() -> impl IntoView {
     let (notes, set_notes) = signal::<Vec<String>>(Vec::new());
     let (book, set_book) = signal(store::open_book());
     let (revision, set_revision) = signal(0u64);
+    let (sheet, set_sheet) = signal(None::<chrono::NaiveDate>);
     let history_of = RwSignal::new(None::<String>);
     let shelf: ShelfCell = StoredValue::new_local(std::rc::Rc::new(std::cell::RefCell::new(
         store::shelf::empty(book.get_untracked(), None),
@@ -343,6 +347,16 @@ fn Bench() -> impl IntoView {
         })
     });
     let amend = Callback::new(commit);
+    let append = Callback::new(move |entries: Vec<crate::journal::Entry>| {
+        if entries.is_empty() {
+            return;
+        }
+        shelf.get_value().borrow_mut().append(entries);
+        set_problem.set(None);
+        set_save_state.set(SaveState::Saving);
+        show();
+        flush();
+    });
     let switch_to = move |target: store::Book, fresh_demo: bool| {
         let db = shelf.get_value().borrow().db.clone();
         leptos::task::spawn_local(async move {
@@ -399,6 +413,7 @@ fn Bench() -> impl IntoView {
     };
     provide_context(Trail {
         amend,
+        append,
         history_of,
         revision,
         shelf,
@@ -411,14 +426,18 @@ fn Bench() -> impl IntoView {
         })
     };
     let retry = move |_| flush();
+    // A full backup at once (the store is full or refused the save).
     let export_now = move |_| {
         if let Some(l) = lab.get_untracked() {
-            let name = format!("cuvette-records-{}.json", Local::now().format("%Y-%m-%d"));
-            if let Err(e) = serde_json::to_string_pretty(&l)
-                .map_err(|e| e.to_string())
-                .and_then(|t| store::download(&name, "application/json", &t).map_err(|e| e.0))
+            let entries = shelf.get_value().borrow().entries_all();
+            let file =
+                crate::exchange::backup(&l, &entries, Utc::now(), &technician.get_untracked());
+            let name =
+                crate::export::file_name(&l.lab_name, "backup", Local::now().date_naive(), "json");
+            if let Err(e) =
+                store::download(&name, "application/json", &crate::exchange::to_text(&file))
             {
-                set_problem.set(Some(e));
+                set_problem.set(Some(e.0));
             }
         }
     };
@@ -475,6 +494,7 @@ fn Bench() -> impl IntoView {
     };
 
     view! {
+        <div id="day-sheet-host"><exchange::DaySheet lab=lab sheet=sheet set_sheet=set_sheet /></div>
         <header class="top">
             <div class="brand">
                 <span class="mark" aria-hidden="true"></span>
@@ -550,7 +570,7 @@ fn Bench() -> impl IntoView {
                 <instrument::InstrumentView lab=lab save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Records active=active>
-                <RecordsPanel lab=lab set_problem=set_problem />
+                <exchange::ExchangePanel lab=lab clock=clock sheet=set_sheet />
                 <records::StorageMeter lab=lab clock=clock />
                 <records::DayTrail clock=clock />
             </ViewPanel>
@@ -589,128 +609,6 @@ fn EmptyState(
     text: &'static str,
 ) -> impl IntoView {
     view! { <p class="empty">{text}</p> }
-}
-
-/// Export and import of the lab's records, for the USB stick between PCs.
-#[component]
-fn RecordsPanel(
-    /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
-    /// Where problems are shown.
-    set_problem: WriteSignal<Option<String>>,
-) -> impl IntoView {
-    let (outcome, set_outcome) = signal::<Option<String>>(None);
-    let amend = expect_context::<Trail>().amend;
-    let export = move |_| {
-        let Some(text) = lab.with(|l| {
-            l.as_ref()
-                .and_then(|l| serde_json::to_string_pretty(l).ok())
-        }) else {
-            set_problem.set(Some(
-                "nothing to export yet: set up the lab or load the demo".into(),
-            ));
-            return;
-        };
-        let name = format!("cuvette-records-{}.json", Local::now().format("%Y-%m-%d"));
-        match store::download(&name, "application/json", &text) {
-            Ok(()) => set_outcome.set(Some(format!("Exported {name}. Copy it to the USB stick."))),
-            Err(e) => set_problem.set(Some(e.0)),
-        }
-    };
-    let csv = move |which: &'static str| {
-        let text = lab.with(|l| {
-            l.as_ref().map(|l| match which {
-                "qc" => crate::export::qc_results_csv(l),
-                _ => crate::export::calibrations_csv(l),
-            })
-        });
-        let Some(text) = text else {
-            return set_problem.set(Some(
-                "nothing to export yet: set up the lab or load the demo".into(),
-            ));
-        };
-        let name = format!("cuvette-{which}-{}.csv", Local::now().format("%Y-%m-%d"));
-        match text.and_then(|t| store::download(&name, "text/csv", &t).map_err(|e| e.0)) {
-            Ok(()) => set_outcome.set(Some(format!("Exported {name}."))),
-            Err(e) => set_problem.set(Some(e)),
-        }
-    };
-    let import = move |ev: leptos::ev::Event| {
-        let input: web_sys::HtmlInputElement = event_target(&ev);
-        let Some(file) = input.files().and_then(|f| f.get(0)) else {
-            return;
-        };
-        input.set_value("");
-        leptos::task::spawn_local(async move {
-            let name = file.name();
-            let text = match store::read_text(file).await {
-                Ok(t) => t,
-                Err(e) => return set_problem.set(Some(e.0)),
-            };
-            let incoming = match Lab::from_json(&text) {
-                Ok(l) => l,
-                Err(e) => {
-                    return set_problem.set(Some(format!("{name}: {e}. Nothing was imported.")))
-                }
-            };
-            let mut merged = lab.get_untracked().unwrap_or_else(|| {
-                let mut empty = Lab::empty(&incoming.lab_name);
-                empty.demo = incoming.demo;
-                empty
-            });
-            let count = merged.merge(&incoming);
-            amend.run(Change {
-                lab: merged,
-                reason: Some(format!("imported from {name}")),
-            });
-            set_outcome.set(Some(format!(
-                "Imported {name}: {} new records, {} updated, {} already here.",
-                count.added, count.updated, count.kept
-            )));
-        });
-    };
-    let summary = move || {
-        lab.with(|l| {
-            l.as_ref().map_or("No records yet.".to_string(), |l| {
-                format!(
-                    "{} tests, {} control levels, {} QC runs, {} materials.",
-                    l.tests.len(),
-                    l.control_levels.len(),
-                    l.control_runs.len(),
-                    l.materials.len()
-                )
-            })
-        })
-    };
-    view! {
-        <section class="card">
-            <h3>"Carry the records to another PC"</h3>
-            <p data-testid="records-summary">{summary}</p>
-            <p>
-                <button data-testid="export-json" on:click=export>"Export all records (JSON)"</button>
-            </p>
-            <p>
-                "For a spreadsheet: "
-                <button data-testid="export-qc-csv" on:click=move |_| csv("qc")>"QC results (CSV)"</button>
-                " "
-                <button data-testid="export-calibrations-csv" on:click=move |_| csv("calibrations")>
-                    "Calibrations (CSV)"
-                </button>
-            </p>
-            <p>
-                <label>
-                    "Import records from another PC (JSON): "
-                    <input type="file" accept=".json,application/json" data-testid="import-json"
-                        on:change=import />
-                </label>
-            </p>
-            <p class="muted">
-                "An import adds the records this PC does not have and takes the newer version \
-                 of a record changed on both; nothing here is deleted."
-            </p>
-            {move || outcome.get().map(|o| view! { <p class="outcome" data-testid="records-outcome">{o}</p> })}
-        </section>
-    }
 }
 
 const NO_LAB: &str = "No lab yet. Set up your tests, or load the demo lab from Set-up.";

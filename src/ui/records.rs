@@ -46,34 +46,6 @@ fn entry_line(e: &Entry) -> String {
     )
 }
 
-/// What an entry says about the record, in a few words.
-fn entry_summary(e: &Entry) -> String {
-    let Some(b) = &e.body else {
-        return String::new();
-    };
-    let field = |k: &str| {
-        b.get(k)
-            .map(|v| v.to_string().trim_matches('"').to_string())
-    };
-    [
-        field("code"),
-        field("name"),
-        field("lot"),
-        field("mean").map(|m| format!("mean {m}")),
-        field("sd").map(|m| format!("SD {m}")),
-        field("values").map(|v| format!("values {v}")),
-        field("event"),
-        field("value")
-            .filter(|v| v != "null")
-            .map(|v| format!("value {v}")),
-        field("lab_name"),
-    ]
-    .into_iter()
-    .flatten()
-    .collect::<Vec<_>>()
-    .join(", ")
-}
-
 /// The history of the record chosen with a "history" button: every version, oldest
 /// first, with who, when and why; printable.
 #[component]
@@ -91,7 +63,7 @@ pub fn HistoryPanel() -> impl IntoView {
             .map(|e| {
                 (
                     entry_line(e),
-                    entry_summary(e),
+                    crate::export::entry_summary(e),
                     journal::revision(e.version, &e.hash),
                 )
             })
@@ -198,7 +170,7 @@ pub fn DayTrail(
         let s = cell.borrow();
         let lines: Vec<(String, String, String)> = journal::day(&s.entries, date, &Local)
             .into_iter()
-            .map(|e| (entry_line(e), entry_summary(e), e.id.clone()))
+            .map(|e| (entry_line(e), crate::export::entry_summary(e), e.id.clone()))
             .collect();
         let who: std::collections::BTreeSet<String> = journal::day(&s.entries, date, &Local)
             .iter()

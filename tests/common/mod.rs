@@ -136,7 +136,7 @@ pub fn python_json(script: &str, input: &serde_json::Value) -> serde_json::Value
     let out = child.wait_with_output().expect("python output");
     assert!(
         out.status.success(),
-        "the python reference failed (is numpy/scipy installed? `pip install numpy scipy`):\n{}",
+        "the python reference failed (are numpy, scipy and jsonschema installed? `pip install -r tools/reference-requirements.txt`):\n{}",
         String::from_utf8_lossy(&out.stderr)
     );
     serde_json::from_slice(&out.stdout).expect("python printed JSON")

@@ -125,7 +125,7 @@ test("a copy of the single file elsewhere (a USB stick) works on its own", async
   }
 });
 
-test("records exported on one PC import on another, and a bad file loses nothing", async () => {
+test("records backed up on one PC import on another, and a bad file loses nothing", async () => {
   const dir = mkdtempSync(join(tmpdir(), "usb-"));
   const saved = join(dir, "records.json");
   let { context, page, problems } = await openApp(newProfile());
@@ -135,9 +135,9 @@ test("records exported on one PC import on another, and a bad file loses nothing
   const summary = await byTestId(page, "records-summary").innerText();
   const [download] = await Promise.all([
     page.waitForEvent("download"),
-    byTestId(page, "export-json").click(),
+    byTestId(page, "export-backup").click(),
   ]);
-  assert.match(download.suggestedFilename(), /^cuvette-records-\d{4}-\d{2}-\d{2}\.json$/);
+  assert.match(download.suggestedFilename(), /^cuvette-demo-district-hospital-lab-invented-data-backup-\d{4}-\d{2}-\d{2}\.json$/);
   await download.saveAs(saved);
   assert.deepEqual(problems, []);
   await context.close();
@@ -145,20 +145,23 @@ test("records exported on one PC import on another, and a bad file loses nothing
   // Another PC: a fresh profile.
   ({ context, page, problems } = await openApp(newProfile()));
   try {
+    await byTestId(page, "initials").fill("im");
+    await byTestId(page, "initials").press("Enter");
     await byTestId(page, "nav-records").click();
     await byTestId(page, "import-json").setInputFiles(saved);
+    await byTestId(page, "import-preview").waitFor();
+    // Nothing changes before the import is confirmed.
+    assert.equal(await byTestId(page, "records-summary").innerText(), "No records yet.");
+    await byTestId(page, "import-confirm").click();
     await byTestId(page, "records-outcome").waitFor();
-    assert.match(await byTestId(page, "records-outcome").innerText(), /Imported records\.json: \d+ new records, 0 updated/);
+    assert.match(await byTestId(page, "records-outcome").innerText(), /Imported records\.json: \d+ record\(s\) added, 0 updated/);
     assert.equal(await byTestId(page, "records-summary").innerText(), summary);
-    // Importing the same file again adds nothing.
-    await byTestId(page, "import-json").setInputFiles(saved);
-    await page.waitForFunction(() => /0 new records/.test(document.querySelector('[data-testid="records-outcome"]').textContent));
-    // A file that is not a lab: a clear message, the records stay.
+    // A file that is not a records file: a clear message, the records stay.
     const junk = join(dir, "photo.json");
     writeFileSync(junk, "this is not JSON");
     await byTestId(page, "import-json").setInputFiles(junk);
-    await byTestId(page, "problem").waitFor();
-    assert.match(await byTestId(page, "problem").innerText(), /photo\.json: this file is not a Cuvette lab.*Nothing was imported/);
+    await byTestId(page, "import-refused").waitFor();
+    assert.match(await byTestId(page, "import-refused").innerText(), /photo\.json: this is not a Cuvette records file.*Nothing was imported/);
     assert.equal(await byTestId(page, "records-summary").innerText(), summary);
     assert.deepEqual(problems, []);
   } finally {
@@ -195,10 +198,10 @@ test("QC results and calibrations export as CSV for a spreadsheet", async () => 
       page.waitForEvent("download"),
       byTestId(page, "export-qc-csv").click(),
     ]);
-    assert.match(download.suggestedFilename(), /^cuvette-qc-\d{4}-\d{2}-\d{2}\.csv$/);
+    assert.match(download.suggestedFilename(), /^cuvette-demo-district-hospital-lab-invented-data-qc-results-\d{4}-\d{2}-\d{2}\.csv$/);
     const path = join(mkdtempSync(join(tmpdir(), "csv-")), "qc.csv");
     await download.saveAs(path);
-    const lines = readFileSync(path, "utf8").trim().split("\n");
+    const lines = readFileSync(path, "utf8").trim().split("\r\n");
     assert.equal(lines[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,by,record_id");
     // 3 demo tests × 26 runs × 2 levels, one creatinine level not run once.
     assert.equal(lines.length - 1, 155);

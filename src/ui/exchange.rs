@@ -1,0 +1,454 @@
+//! Records to the USB stick and back: the day's records (JSON, CSV tables, the printed
+//! day sheet), the full backup, and the import with its preview. The files and every
+//! check are `crate::exchange` and `crate::export`; this view offers them.
+
+use std::collections::HashMap;
+
+use chrono::{Local, NaiveDate, Utc};
+use leptos::prelude::*;
+
+use super::Trail;
+use crate::exchange::{self, Checked, Choice, Plan};
+use crate::export;
+use crate::journal::Entry;
+use crate::lab::Lab;
+use crate::store;
+
+/// The largest file an import reads, in bytes (a three-year backup is far smaller).
+const LARGEST_IMPORT: usize = 100_000_000;
+
+/// An import waiting for the user's confirmation.
+#[derive(Clone)]
+struct Pending {
+    name: String,
+    checked: std::sync::Arc<Checked>,
+    plan: std::sync::Arc<Plan>,
+}
+
+/// The records' exchange card.
+#[component]
+pub fn ExchangePanel(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+    /// The current time, ticking.
+    clock: ReadSignal<chrono::DateTime<Utc>>,
+    /// The day sheet to print, when open.
+    sheet: WriteSignal<Option<NaiveDate>>,
+) -> impl IntoView {
+    let trail = expect_context::<Trail>();
+    let (outcome, set_outcome) = signal::<Option<String>>(None);
+    let (refused, set_refused) = signal::<Option<String>>(None);
+    let (day, set_day) = signal(None::<NaiveDate>);
+    let (pending, set_pending) = signal::<Option<Pending>>(None);
+    let choices = RwSignal::new(HashMap::<String, Choice>::new());
+    let chosen_day = move || {
+        day.get()
+            .unwrap_or_else(|| clock.get().with_timezone(&Local).date_naive())
+    };
+    let entries = move || trail.shelf.get_value().borrow().entries_all();
+    let offer = move |name: String, mime: &str, text: Result<String, String>| match text
+        .and_then(|t| store::download(&name, mime, &t).map_err(|e| e.0))
+    {
+        Ok(()) => set_outcome.set(Some(format!("Offered {name}. Copy it to the USB stick."))),
+        Err(e) => set_outcome.set(Some(e)),
+    };
+    let with_lab = move |f: &dyn Fn(&Lab)| match lab.get_untracked() {
+        Some(l) => f(&l),
+        None => set_outcome.set(Some(
+            "nothing to export yet: set up the lab or load the demo".into(),
+        )),
+    };
+    let by = move || store::technician();
+    let day_json = move |_| {
+        let d = chosen_day();
+        with_lab(&|l| {
+            let f = exchange::day_file(l, &entries(), d, &Local, Utc::now(), &by());
+            offer(
+                export::file_name(&l.lab_name, "day", d, "json"),
+                "application/json",
+                Ok(exchange::to_text(&f)),
+            );
+        })
+    };
+    let day_csv = move |_| {
+        let d = chosen_day();
+        with_lab(&|l| match export::day_tables(l, &entries(), d, &Local) {
+            Ok(tables) => {
+                for t in tables {
+                    offer(
+                        export::file_name(&l.lab_name, t.slug, d, "csv"),
+                        "text/csv",
+                        export::to_csv(&t),
+                    );
+                }
+            }
+            Err(e) => set_outcome.set(Some(e)),
+        })
+    };
+    let backup = move |_| {
+        with_lab(&|l| {
+            let today = Utc::now().with_timezone(&Local).date_naive();
+            let f = exchange::backup(l, &entries(), Utc::now(), &by());
+            offer(
+                export::file_name(&l.lab_name, "backup", today, "json"),
+                "application/json",
+                Ok(exchange::to_text(&f)),
+            );
+        })
+    };
+    let csv = move |which: &'static str| {
+        with_lab(&|l| {
+            let today = Utc::now().with_timezone(&Local).date_naive();
+            let text = match which {
+                "qc-results" => export::qc_results_csv(l, &Local),
+                _ => export::calibrations_csv(l, &Local),
+            };
+            offer(
+                export::file_name(&l.lab_name, which, today, "csv"),
+                "text/csv",
+                text,
+            );
+        })
+    };
+    // Read, check and plan; nothing changes until the user confirms.
+    let take_file = move |file: web_sys::File| {
+        set_refused.set(None);
+        set_outcome.set(None);
+        set_pending.set(None);
+        let name = file.name();
+        if file.size() > LARGEST_IMPORT as f64 {
+            return set_refused.set(Some(format!(
+                "{name}: the file is larger than 100 MB; this is not a Cuvette records file \
+                 this browser can hold. Nothing was imported."
+            )));
+        }
+        leptos::task::spawn_local(async move {
+            let text = match store::read_text(file).await {
+                Ok(t) => t,
+                Err(e) => return set_refused.set(Some(format!("{e}. Nothing was imported."))),
+            };
+            match exchange::read(&text, LARGEST_IMPORT) {
+                Ok(checked) => {
+                    let plan = exchange::plan(&entries(), &checked);
+                    choices.set(HashMap::new());
+                    set_pending.set(Some(Pending {
+                        name,
+                        checked: std::sync::Arc::new(checked),
+                        plan: std::sync::Arc::new(plan),
+                    }));
+                }
+                Err(e) => set_refused.set(Some(format!("{name}: {e}. Nothing was imported."))),
+            }
+        });
+    };
+    let on_pick = move |ev: leptos::ev::Event| {
+        let input: web_sys::HtmlInputElement = event_target(&ev);
+        let file = input.files().and_then(|f| f.get(0));
+        input.set_value("");
+        if let Some(file) = file {
+            take_file(file);
+        }
+    };
+    let on_drop = move |ev: leptos::ev::DragEvent| {
+        ev.prevent_default();
+        if let Some(file) = ev
+            .data_transfer()
+            .and_then(|d| d.files())
+            .and_then(|f| f.get(0))
+        {
+            take_file(file);
+        }
+    };
+    let confirm = move |_| {
+        let Some(p) = pending.get_untracked() else {
+            return;
+        };
+        let cell = trail.shelf.get_value();
+        let result = {
+            let s = cell.borrow();
+            exchange::apply(
+                &p.plan,
+                &choices.get_untracked(),
+                &s.replay,
+                Utc::now(),
+                &by(),
+                &p.name,
+            )
+        };
+        match result {
+            Ok(new) => {
+                let n = new.len();
+                trail.append.run(new);
+                set_pending.set(None);
+                set_outcome.set(Some(if n == 0 {
+                    format!(
+                        "{}: everything in it is already here; nothing changed.",
+                        p.name
+                    )
+                } else {
+                    format!(
+                        "Imported {}: {} record(s) added, {} updated, {} conflict(s) resolved.",
+                        p.name,
+                        p.plan.added.len(),
+                        p.plan.newer.len(),
+                        p.plan.conflicts.len()
+                    )
+                }));
+            }
+            Err(e) => set_refused.set(Some(format!("{}: {e}", p.name))),
+        }
+    };
+    let summary = move || {
+        lab.with(|l| {
+            l.as_ref().map_or("No records yet.".to_string(), |l| {
+                format!(
+                    "{} tests, {} control levels, {} QC runs, {} materials, {} calibrations, {} \
+                     instrument log entries.",
+                    l.tests.len(),
+                    l.control_levels.len(),
+                    l.control_runs.len(),
+                    l.materials.len(),
+                    l.calibrations.len(),
+                    l.instrument_log.len()
+                )
+            })
+        })
+    };
+    let preview = move || {
+        pending.get().map(|p| {
+            let s = &p.checked.summary;
+            let plan = p.plan.clone();
+            let what = match s.scope {
+                exchange::Scope::Backup => "a full backup".to_string(),
+                exchange::Scope::Day => format!(
+                    "the records of {}",
+                    s.day.map_or(String::new(), |d| d.to_string())
+                ),
+            };
+            let lines = |list: &[exchange::PlanLine]| {
+                list.iter()
+                    .take(50)
+                    .map(|l| view! { <li>{l.label.clone()}</li> })
+                    .collect_view()
+            };
+            let conflicts = plan
+                .conflicts
+                .iter()
+                .map(|c| {
+                    let id = c.id.clone();
+                    let id2 = c.id.clone();
+                    let ours = format!(
+                        "this PC: {} by {} on {}",
+                        export::entry_summary(&c.ours),
+                        c.ours.by,
+                        c.ours.at.with_timezone(&Local).format("%Y-%m-%d %H:%M")
+                    );
+                    let theirs = format!(
+                        "the file: {} by {} on {}",
+                        export::entry_summary(&c.theirs),
+                        c.theirs.by,
+                        c.theirs.at.with_timezone(&Local).format("%Y-%m-%d %H:%M")
+                    );
+                    view! {
+                        <li data-testid="import-conflict">
+                            <strong>{c.label.clone()}</strong>" was changed on both PCs. Keep:"
+                            <label>
+                                <input type="radio" name=format!("keep-{}", c.id) data-testid="keep-ours"
+                                    on:change=move |_| choices.update(|m| { m.insert(id.clone(), Choice::Ours); }) />
+                                {ours}
+                            </label>
+                            <label>
+                                <input type="radio" name=format!("keep-{}", c.id) data-testid="keep-theirs"
+                                    on:change=move |_| choices.update(|m| { m.insert(id2.clone(), Choice::Theirs); }) />
+                                {theirs}
+                            </label>
+                            " Both versions stay in the record's history."
+                        </li>
+                    }
+                })
+                .collect_view();
+            let undecided = {
+                let plan = plan.clone();
+                move || {
+                    let c = choices.get();
+                    plan.conflicts.iter().any(|x| !c.contains_key(&x.id))
+                }
+            };
+            view! {
+                <div class="import-preview" data-testid="import-preview">
+                    <p>{format!(
+                        "{}: {what} of {}{}, written {} by {}. Chain {}.",
+                        p.name,
+                        s.lab_name,
+                        if s.demo { " (demo)" } else { "" },
+                        s.made_at.with_timezone(&Local).format("%Y-%m-%d %H:%M"),
+                        if s.made_by.is_empty() { "—" } else { &s.made_by },
+                        s.chain
+                    )}</p>
+                    <p data-testid="import-counts">{format!(
+                        "{} record(s) to add, {} to update, {} already here, {} conflict(s).",
+                        plan.added.len(),
+                        plan.newer.len(),
+                        plan.same,
+                        plan.conflicts.len()
+                    )}</p>
+                    {(!plan.added.is_empty()).then(|| view! { <details><summary>"To add"</summary><ul>{lines(&plan.added)}</ul></details> })}
+                    {(!plan.newer.is_empty()).then(|| view! { <details><summary>"To update"</summary><ul>{lines(&plan.newer)}</ul></details> })}
+                    <ul class="conflicts">{conflicts}</ul>
+                    <p>
+                        <button data-testid="import-confirm" on:click=confirm disabled=undecided>
+                            {if plan.is_noop() { "Nothing to import: close" } else { "Import these records" }}
+                        </button>
+                        " "
+                        <button data-testid="import-cancel" on:click=move |_| set_pending.set(None)>"Cancel"</button>
+                    </p>
+                </div>
+            }
+        })
+    };
+    view! {
+        <section class="card" data-testid="records-exchange">
+            <h3>"Carry the records to another PC"</h3>
+            <p data-testid="records-summary">{summary}</p>
+            <p>
+                <label>
+                    "Day "
+                    <input type="date" data-testid="export-day"
+                        prop:value=move || chosen_day().to_string()
+                        on:change=move |ev| set_day.set(event_target_value(&ev).parse().ok()) />
+                </label>
+            </p>
+            <p>
+                <button data-testid="export-day-json" on:click=day_json>"The day's records (JSON)"</button>
+                " "
+                <button data-testid="export-day-csv" on:click=day_csv>"The day's tables (CSV)"</button>
+                " "
+                <button data-testid="print-day-sheet" on:click=move |_| sheet.set(Some(chosen_day()))>
+                    "Print the day sheet"
+                </button>
+            </p>
+            <p>
+                <button data-testid="export-backup" on:click=backup>"Full backup (JSON, with the whole trail)"</button>
+            </p>
+            <p>
+                "For a spreadsheet, everything: "
+                <button data-testid="export-qc-csv" on:click=move |_| csv("qc-results")>"QC results (CSV)"</button>
+                " "
+                <button data-testid="export-calibrations-csv" on:click=move |_| csv("calibrations")>"Calibrations (CSV)"</button>
+            </p>
+            <div class="drop" data-testid="import-drop"
+                on:dragover=move |ev: leptos::ev::DragEvent| ev.prevent_default()
+                on:drop=on_drop>
+                <label>
+                    "Import a backup or a day's records (JSON), or drop the file here: "
+                    <input type="file" accept=".json,application/json" data-testid="import-json" on:change=on_pick />
+                </label>
+            </div>
+            <p class="muted">
+                "The file is checked whole before anything changes (every entry's SHA-256, the \
+                 chain, every value's range). A preview shows what will be added and what was \
+                 changed on both PCs; nothing is deleted, and importing the same file again \
+                 changes nothing."
+            </p>
+            {preview}
+            {move || refused.get().map(|r| view! { <p class="problem" role="alert" data-testid="import-refused">{r}</p> })}
+            {move || outcome.get().map(|o| view! { <p class="outcome" data-testid="records-outcome">{o}</p> })}
+        </section>
+    }
+}
+
+/// The printable day sheet: one page per table, each with the lab, the date, who
+/// worked and a line for a signature.
+#[component]
+pub fn DaySheet(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+    /// The day shown, when open.
+    sheet: ReadSignal<Option<NaiveDate>>,
+    set_sheet: WriteSignal<Option<NaiveDate>>,
+) -> impl IntoView {
+    let trail = expect_context::<Trail>();
+    Effect::new(move |_| {
+        let open = sheet.get().is_some();
+        if let Some(body) = web_sys::window()
+            .and_then(|w| w.document())
+            .and_then(|d| d.body())
+        {
+            let _ = if open {
+                body.class_list().add_1("sheet-open")
+            } else {
+                body.class_list().remove_1("sheet-open")
+            };
+        }
+    });
+    let print = |_| {
+        if let Some(w) = web_sys::window() {
+            let _ = w.print();
+        }
+    };
+    move || {
+        let day = sheet.get()?;
+        let l = lab.get()?;
+        let entries: Vec<Entry> = trail.shelf.get_value().borrow().entries_all();
+        let tables = match export::day_tables(&l, &entries, day, &Local) {
+            Ok(t) => t,
+            Err(e) => return Some(view! { <p class="problem">{e}</p> }.into_any()),
+        };
+        let who = export::who_worked(&entries, day, &Local).join(", ");
+        let head = {
+            let name = l.lab_name.clone();
+            let demo = l.demo;
+            let who = who.clone();
+            move |title: &str| {
+                view! {
+                    <header class="sheet-head">
+                        <strong>{name.clone()}</strong>
+                        {demo.then_some(" — DEMO LAB, invented data")}
+                        <span>{format!(" — {title} — {day}")}</span>
+                        <div>{format!("Who worked: {}", if who.is_empty() { "nobody recorded anything" } else { &who })}</div>
+                    </header>
+                }
+            }
+        };
+        let parts = tables
+            .into_iter()
+            .map(|t| {
+                let empty = t.rows.is_empty();
+                view! {
+                    <section class="sheet-part" data-testid="sheet-part">
+                        {head(t.title)}
+                        <h3>{t.title}</h3>
+                        {if empty {
+                            view! { <p class="empty">"None on this day."</p> }.into_any()
+                        } else {
+                            view! {
+                                <table>
+                                    <thead><tr>{t.headers.iter().map(|h| view! { <th>{*h}</th> }).collect_view()}</tr></thead>
+                                    <tbody>{t.rows.into_iter().map(|r| view! {
+                                        <tr>{r.into_iter().map(|c| view! { <td>{c}</td> }).collect_view()}</tr>
+                                    }).collect_view()}</tbody>
+                                </table>
+                            }.into_any()
+                        }}
+                        <p class="signature">"Reviewed by (name, signature): ______________________________   Date: ____________"</p>
+                    </section>
+                }
+            })
+            .collect_view();
+        Some(
+            view! {
+                <div id="day-sheet" class="day-sheet" data-testid="day-sheet">
+                    <p class="no-print">
+                        <button data-testid="sheet-print" on:click=print>"Print or save as PDF"</button>
+                        " "
+                        <button data-testid="sheet-close" on:click=move |_| set_sheet.set(None)>"Close the day sheet"</button>
+                    </p>
+                    <p class="caution">"Cuvette supports the lab's own QC policy and the maker's instructions; \
+                        a released result is the responsibility of qualified staff."</p>
+                    {parts}
+                </div>
+            }
+            .into_any(),
+        )
+    }
+}
