@@ -39,6 +39,8 @@ pub enum Scope {
     Backup,
     /// One day's records (with their history up to that day's end) and the set-up.
     Day,
+    /// A year's records, archived: kept on the stick, removed from the browser.
+    Year,
 }
 
 /// A records file as written.
@@ -57,6 +59,9 @@ pub struct RecordsFile {
     /// The day a day file covers (the lab's local date).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub day: Option<NaiveDate>,
+    /// The year an archive covers (the lab's local calendar).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub year: Option<i32>,
     pub entries: Vec<Entry>,
     /// SHA-256 (hex) over the entries' hashes, in order, each followed by a newline.
     pub digest: String,
@@ -89,6 +94,7 @@ fn file(
         made_at: at,
         made_by: by.to_string(),
         day,
+        year: None,
         digest: digest(&entries),
         entries,
     }
@@ -153,6 +159,8 @@ pub struct Summary {
     pub made_by: String,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub day: Option<NaiveDate>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub year: Option<i32>,
     /// Current records per kind (words as in the trail), and versions in all.
     pub records: BTreeMap<String, usize>,
     pub versions: usize,
@@ -430,6 +438,7 @@ fn summarize(file: &RecordsFile, replayed: &Replay) -> Summary {
         made_at: file.made_at,
         made_by: file.made_by.clone(),
         day: file.day,
+        year: file.year,
         records,
         versions: file.entries.len(),
         first: file.entries.iter().map(|e| e.at).min(),
@@ -437,7 +446,9 @@ fn summarize(file: &RecordsFile, replayed: &Replay) -> Summary {
         days_covered: days.len(),
         chain: match file.scope {
             Scope::Backup => "intact: every entry's SHA-256 and every link from the first".into(),
-            Scope::Day => "intact: every entry's SHA-256 and the file's digest".into(),
+            Scope::Day | Scope::Year => {
+                "intact: every entry's SHA-256 and the file's digest".into()
+            }
         },
     }
 }
@@ -584,6 +595,21 @@ pub fn plan(ours: &[Entry], file: &Checked) -> Plan {
     p
 }
 
+/// A records event's id: its own for every import (the entries it brought, when, by
+/// whom, from which file), so two PCs importing the same file make two events.
+fn event_id(entries: &[Entry], at: DateTime<Utc>, by: &str, file_name: &str) -> String {
+    let mut h = Sha256::new();
+    h.update(digest(entries).as_bytes());
+    h.update(at.to_rfc3339().as_bytes());
+    h.update(by.as_bytes());
+    h.update(file_name.as_bytes());
+    h.finalize()
+        .iter()
+        .take(8)
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}
+
 /// The entries an import appends after `current` (the replay of this PC's journal):
 /// the file's missing versions in order, renumbered and linked; for a conflict where
 /// this PC's version is kept, a correction restoring it after the other's; and one
@@ -647,13 +673,14 @@ pub fn apply(
         plan.conflicts.len(),
         plan.same
     );
+    let id = event_id(&out, at, &by, file_name);
     let event = Entry {
         seq: 0,
         at,
         by,
         action: Action::Create,
         kind: Kind::Event,
-        id: format!("event-{}", &digest(&out)[..16]),
+        id: format!("event-{id}"),
         version: 1,
         reason: None,
         created: None,
@@ -675,6 +702,160 @@ pub fn apply(
         return Err(Refused(format!(
             "after the import {why}; nothing was imported"
         )));
+    }
+    Ok(out)
+}
+
+/// The records of `year` (local to `tz`) that can leave the browser: QC runs,
+/// calibrations, instrument log entries, materials and records events whose every
+/// version was made in that year, the year being over at `now`. Kept whatever their
+/// age: the set-up (tests, control levels, settings), each test's newest usable
+/// calibration, and any material not yet expired at `now`.
+pub fn archivable<Tz: TimeZone>(
+    lab: &Lab,
+    entries: &[Entry],
+    year: i32,
+    now: DateTime<Utc>,
+    tz: &Tz,
+) -> HashSet<String> {
+    use chrono::Datelike;
+    if year >= now.with_timezone(tz).year() {
+        return HashSet::new();
+    }
+    let mut in_year: HashMap<&str, bool> = HashMap::new();
+    for e in entries {
+        let ok = e.at.with_timezone(tz).year() == year
+            && matches!(
+                e.kind,
+                Kind::ControlRun
+                    | Kind::Calibration
+                    | Kind::InstrumentEntry
+                    | Kind::Material
+                    | Kind::Event
+            );
+        *in_year.entry(e.id.as_str()).or_insert(true) &= ok;
+    }
+    let mut keep: HashSet<&str> = HashSet::new();
+    for t in &lab.tests {
+        if let Some(c) = lab.current_calibration(&t.meta.id) {
+            keep.insert(c.meta.id.as_str());
+        }
+    }
+    for m in &lab.materials {
+        let expired = crate::engine::stability::evaluate(
+            &m.stability,
+            now,
+            tz,
+            crate::engine::stability::WarningWindow::default(),
+        )
+        .is_ok_and(|r| r.material.state == crate::engine::stability::StabilityState::Expired);
+        if !expired {
+            keep.insert(m.meta.id.as_str());
+        }
+    }
+    in_year
+        .into_iter()
+        .filter(|(id, ok)| *ok && !keep.contains(id))
+        .map(|(id, _)| id.to_string())
+        .collect()
+}
+
+/// The archive of `year`: every version of the records [`archivable`] chose, and the
+/// set-up, so the file opens on its own (read-only) with its charts.
+pub fn year_file(
+    lab: &Lab,
+    entries: &[Entry],
+    year: i32,
+    chosen: &HashSet<String>,
+    at: DateTime<Utc>,
+    by: &str,
+) -> RecordsFile {
+    let picked: Vec<Entry> = entries
+        .iter()
+        .filter(|e| {
+            chosen.contains(&e.id)
+                || matches!(e.kind, Kind::Test | Kind::ControlLevel | Kind::Settings)
+        })
+        .cloned()
+        .collect();
+    let mut f = file(Scope::Year, lab, picked, None, at, by);
+    f.year = Some(year);
+    f
+}
+
+/// Check the copy of an archive read back from the stick: it must be the file that was
+/// written (same scope, year and digest) and pass every check of [`read`].
+pub fn verify_copy(text: &str, written: &RecordsFile) -> Result<Checked, Refused> {
+    let c = read(text, usize::MAX)?;
+    if c.file.scope != Scope::Year || c.file.year != written.year || c.file.digest != written.digest
+    {
+        return Err(Refused(
+            "this is not the archive just written (its contents differ); pick the copy on \
+             the USB stick"
+                .into(),
+        ));
+    }
+    Ok(c)
+}
+
+/// The journal after an archive was verified: the entries of every record not archived,
+/// in order, numbered and linked afresh from the first, then a records event naming the
+/// archive (year, records, versions, the file's digest) and the hash the journal ended
+/// with before. Refused if the kept records would not replay as they were.
+pub fn after_archive(
+    entries: &[Entry],
+    archived: &RecordsFile,
+    chosen: &HashSet<String>,
+    at: DateTime<Utc>,
+    by: &str,
+    file_name: &str,
+) -> Result<Vec<Entry>, Refused> {
+    let before = journal::replay(entries, None, &[]);
+    let mut out = rechain(
+        &entries
+            .iter()
+            .filter(|e| !chosen.contains(&e.id))
+            .cloned()
+            .collect::<Vec<_>>(),
+    );
+    let removed = entries.iter().filter(|e| chosen.contains(&e.id)).count();
+    let what = format!(
+        "archived {}: {} record(s) ({removed} versions) written to {file_name} (SHA-256 digest \
+         {}), checked on the copy read back, then removed from this browser; the journal \
+         before ended with entry {} ({})",
+        archived.year.map_or(String::new(), |y| y.to_string()),
+        chosen.len(),
+        archived.digest,
+        entries.len(),
+        entries.last().map_or(GENESIS, |e| e.hash.as_str()),
+    );
+    let tip = Tip::after(&out);
+    out.push(
+        Entry {
+            seq: tip.next_seq,
+            at,
+            by: by.trim().to_uppercase(),
+            action: Action::Create,
+            kind: Kind::Event,
+            id: format!("event-{}", event_id(&out, at, by, file_name)),
+            version: 1,
+            reason: None,
+            created: None,
+            body: serde_json::to_value(journal::Event { what }).ok(),
+            prev: tip.hash,
+            hash: String::new(),
+        }
+        .seal(),
+    );
+    let after = journal::replay(&out, None, &[]);
+    let mut want = before.lab.clone();
+    for id in chosen {
+        want.remove_record(id);
+    }
+    if !after.set_aside.is_empty() || after.lab != want {
+        return Err(Refused(
+            "the records kept would not read back as they are; nothing was removed".into(),
+        ));
     }
     Ok(out)
 }

@@ -271,3 +271,55 @@ fn the_demo_backup_is_current_and_valid() {
     assert_eq!(stored, text, "rewrite with CUVETTE_WRITE_DEMO_BACKUP=1");
     assert!(exchange::read(&stored, LARGEST).is_ok());
 }
+
+/// An archive of a year that is over: written, its copy checked, then removed from the
+/// journal; the rest replays as it was, the trail names the archive, the archive opens
+/// on its own, and a copy that differs is refused.
+#[test]
+fn a_year_is_archived_only_after_its_copy_checks_and_the_rest_stays_as_it_was() {
+    let ours = demo_journal();
+    let lab = replay(&ours, None, &[]).lab;
+    let now: DateTime<Utc> = "2027-03-01T08:00:00Z".parse().unwrap();
+    // Not a year that is still running.
+    assert!(exchange::archivable(&lab, &ours, 2027, now, &Utc).is_empty());
+    let chosen = exchange::archivable(&lab, &ours, 2026, now, &Utc);
+    assert!(chosen.len() > 50, "{}", chosen.len());
+    for t in &lab.tests {
+        let current = lab.current_calibration(&t.meta.id).unwrap();
+        assert!(
+            !chosen.contains(&current.meta.id),
+            "the calibration in use stays"
+        );
+        assert!(!chosen.contains(&t.meta.id), "the set-up stays");
+    }
+    let f = exchange::year_file(&lab, &ours, 2026, &chosen, now, "AK");
+    let text = exchange::to_text(&f);
+    // The copy read back: the same file passes; another file is refused.
+    let opened = exchange::verify_copy(&text, &f).expect("the copy checks");
+    assert_eq!(opened.lab.control_runs.len(), lab.control_runs.len());
+    let day = exchange::to_text(&exchange::day_file(
+        &lab,
+        &ours,
+        lab.newest_time().unwrap().date_naive(),
+        &Utc,
+        now,
+        "AK",
+    ));
+    assert!(exchange::verify_copy(&day, &f).is_err());
+    let after = exchange::after_archive(&ours, &f, &chosen, now, "ak", "a.json").unwrap();
+    let r = replay(&after, None, &[]);
+    assert!(r.set_aside.is_empty() && r.gaps.is_empty());
+    assert_eq!(r.lab.control_runs.len(), 0);
+    assert_eq!(r.lab.tests, lab.tests);
+    assert_eq!(r.lab.calibrations.len(), lab.tests.len());
+    let last = after.last().unwrap();
+    assert_eq!(last.kind, Kind::Event);
+    let what = last.body.as_ref().unwrap()["what"].as_str().unwrap();
+    assert!(
+        what.starts_with("archived 2026: ") && what.contains(&f.digest),
+        "{what}"
+    );
+    // The archive imported back brings every archived record again.
+    let plan = exchange::plan(&after, &opened);
+    assert_eq!(plan.added.len(), chosen.len());
+}

@@ -201,6 +201,22 @@ impl Db {
         committed(&tx).await.map_err(refused)
     }
 
+    /// Replace the whole journal of `book` by `entries`, in one transaction (an archive
+    /// removed records): either all of it is written or nothing changes.
+    pub async fn replace_all(&self, book: &str, entries: &[Entry]) -> Result<(), StoreError> {
+        let fail = |e: JsValue| failed("rewrite", e);
+        let tx = self.transaction(book, true).map_err(fail)?;
+        let store = tx.object_store(book).map_err(fail)?;
+        store.clear().map_err(fail)?;
+        for e in entries {
+            let text = serde_json::to_string(e).map_err(|x| StoreError(x.to_string()))?;
+            store
+                .add_with_key(&JsValue::from_str(&text), &JsValue::from_f64(e.seq as f64))
+                .map_err(fail)?;
+        }
+        committed(&tx).await.map_err(fail)
+    }
+
     /// Write entries another copy has and this one lacks (a repair); numbers already
     /// taken are left as they are.
     pub async fn put_missing(&self, book: &str, entries: &[Entry]) -> Result<(), StoreError> {

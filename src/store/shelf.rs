@@ -112,9 +112,10 @@ impl Shelf {
             (Some(s), None) => Some(s),
             (_, p) => p,
         };
-        if previous
-            .as_ref()
-            .is_some_and(|p| p.count as usize > self.entries.len())
+        if !fresh
+            && previous
+                .as_ref()
+                .is_some_and(|p| p.count as usize > self.entries.len())
         {
             return true; // the copy is ahead of this tab; it will be read, not overwritten
         }
@@ -329,6 +330,32 @@ pub async fn flush(cell: &Rc<RefCell<Shelf>>) -> Option<Saved> {
     }
     cell.borrow_mut().flushing = false;
     Some(outcome)
+}
+
+/// Replace the book's whole journal (after an archive was verified): IndexedDB in one
+/// transaction, then a fresh localStorage generation. Refused while changes are unsaved.
+pub async fn replace(cell: &Rc<RefCell<Shelf>>, entries: Vec<Entry>) -> Result<(), StoreError> {
+    let (db, book) = {
+        let s = cell.borrow();
+        if !s.unsaved.is_empty() || s.flushing {
+            return Err(StoreError(
+                "changes are still being saved; try again when the screen says all saved".into(),
+            ));
+        }
+        (s.db.clone(), s.book)
+    };
+    if let Some(db) = &db {
+        db.replace_all(book.store_name(), &entries).await?;
+    }
+    let mut s = cell.borrow_mut();
+    s.replay = journal::replay(&entries, None, &s.skip);
+    s.entries = entries;
+    if !s.write_mirror(true) && db.is_none() {
+        return Err(StoreError(
+            "the browser's storage refused the rewritten records".into(),
+        ));
+    }
+    Ok(())
 }
 
 /// Take in what another tab committed. Returns true when something new came in.

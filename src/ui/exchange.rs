@@ -224,7 +224,12 @@ pub fn ExchangePanel(
                     "the records of {}",
                     s.day.map_or(String::new(), |d| d.to_string())
                 ),
+                exchange::Scope::Year => format!(
+                    "the archive of {}",
+                    s.year.map_or(String::new(), |y| y.to_string())
+                ),
             };
+            let for_view = p.clone();
             let lines = |list: &[exchange::PlanLine]| {
                 list.iter()
                     .take(50)
@@ -301,6 +306,11 @@ pub fn ExchangePanel(
                         </button>
                         " "
                         <button data-testid="import-cancel" on:click=move |_| set_pending.set(None)>"Cancel"</button>
+                        " "
+                        <button data-testid="open-read-only" on:click=move |_| {
+                            trail.view_archive.run(Some((for_view.name.clone(), for_view.checked.lab.clone())));
+                            set_pending.set(None);
+                        }>"Open it read-only instead"</button>
                     </p>
                 </div>
             }
@@ -450,5 +460,171 @@ pub fn DaySheet(
             }
             .into_any(),
         )
+    }
+}
+
+/// An archive being made: the file written, waiting for its copy to be checked.
+#[derive(Clone)]
+struct Archiving {
+    name: String,
+    file: std::sync::Arc<exchange::RecordsFile>,
+    chosen: std::sync::Arc<std::collections::HashSet<String>>,
+    verified: bool,
+}
+
+/// Archive a year: write its records to a file, check the copy read back from the
+/// stick, and only then remove them from the browser (the trail keeps a line).
+#[component]
+pub fn ArchivePanel(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+    /// The current time, ticking.
+    clock: ReadSignal<chrono::DateTime<Utc>>,
+) -> impl IntoView {
+    use chrono::Datelike;
+    let trail = expect_context::<Trail>();
+    let (year, set_year) = signal(None::<i32>);
+    let (state, set_state) = signal(None::<Archiving>);
+    let (message, set_message) = signal(None::<String>);
+    let last_year = move || clock.get().with_timezone(&Local).year() - 1;
+    let chosen_year = move || year.get().unwrap_or_else(last_year);
+    let count = move || {
+        trail.revision.track();
+        let y = chosen_year();
+        lab.with(|l| {
+            l.as_ref().map_or(0, |l| {
+                let entries = trail.shelf.get_value().borrow().entries_all();
+                exchange::archivable(l, &entries, y, clock.get(), &Local).len()
+            })
+        })
+    };
+    let write = move |_| {
+        let Some(l) = lab.get_untracked() else { return };
+        let y = chosen_year();
+        let entries = trail.shelf.get_value().borrow().entries_all();
+        let chosen = exchange::archivable(&l, &entries, y, Utc::now(), &Local);
+        if chosen.is_empty() {
+            return set_message.set(Some(format!(
+                "nothing to archive for {y}: only records of a year that is over, not in use \
+                 (the newest calibration of each test and materials still usable stay)"
+            )));
+        }
+        let f = exchange::year_file(&l, &entries, y, &chosen, Utc::now(), &store::technician());
+        let name = export::file_name(
+            &l.lab_name,
+            &format!("archive-{y}"),
+            Utc::now().with_timezone(&Local).date_naive(),
+            "json",
+        );
+        match store::download(&name, "application/json", &exchange::to_text(&f)) {
+            Ok(()) => {
+                set_message.set(Some(format!(
+                    "Wrote {name} ({} records of {y}). Now pick that file on the USB stick below, \
+                     so Cuvette can check the copy before removing anything.",
+                    chosen.len()
+                )));
+                set_state.set(Some(Archiving {
+                    name,
+                    file: std::sync::Arc::new(f),
+                    chosen: std::sync::Arc::new(chosen),
+                    verified: false,
+                }));
+            }
+            Err(e) => set_message.set(Some(e.0)),
+        }
+    };
+    let verify = move |ev: leptos::ev::Event| {
+        let input: web_sys::HtmlInputElement = event_target(&ev);
+        let file = input.files().and_then(|f| f.get(0));
+        input.set_value("");
+        let (Some(file), Some(a)) = (file, state.get_untracked()) else {
+            return;
+        };
+        leptos::task::spawn_local(async move {
+            let name = file.name();
+            let text = match store::read_text(file).await {
+                Ok(t) => t,
+                Err(e) => return set_message.set(Some(e.0)),
+            };
+            match exchange::verify_copy(&text, &a.file) {
+                Ok(_) => {
+                    set_message.set(Some(format!(
+                        "{name} is a complete, intact copy of the archive. The records can now be \
+                         removed from this browser."
+                    )));
+                    set_state.set(Some(Archiving {
+                        verified: true,
+                        ..a
+                    }));
+                }
+                Err(e) => set_message.set(Some(format!("{name}: {e}. Nothing was removed."))),
+            }
+        });
+    };
+    let remove = move |_| {
+        let Some(a) = state.get_untracked().filter(|a| a.verified) else {
+            return;
+        };
+        let cell = trail.shelf.get_value();
+        let entries = cell.borrow().entries_all();
+        let by = store::technician();
+        let new =
+            match exchange::after_archive(&entries, &a.file, &a.chosen, Utc::now(), &by, &a.name) {
+                Ok(n) => n,
+                Err(e) => return set_message.set(Some(e.0)),
+            };
+        leptos::task::spawn_local(async move {
+            match store::shelf::replace(&cell, new).await {
+                Ok(()) => {
+                    set_message.set(Some(format!(
+                        "{} records of {} were removed from this browser; {} keeps them. The \
+                         trail says so.",
+                        a.chosen.len(),
+                        a.file.year.unwrap_or_default(),
+                        a.name
+                    )));
+                    set_state.set(None);
+                    trail.refresh.run(());
+                }
+                Err(e) => set_message.set(Some(format!("{e}. Nothing was removed."))),
+            }
+        });
+    };
+    view! {
+        <section class="card" data-testid="archive">
+            <h3>"Archive a year"</h3>
+            <p>
+                <label>
+                    "Year "
+                    <input type="number" data-testid="archive-year" min="2000" max="2100"
+                        prop:value=move || chosen_year().to_string()
+                        on:change=move |ev| {
+                            set_state.set(None);
+                            set_year.set(event_target_value(&ev).trim().parse().ok().filter(|y| (2000..=2100).contains(y)))
+                        } />
+                </label>
+                " "
+                <span data-testid="archive-count">{move || format!("{} record(s) can be archived", count())}</span>
+            </p>
+            <p>
+                <button data-testid="archive-write" on:click=write>"1. Write the year's archive file"</button>
+            </p>
+            <Show when=move || state.get().is_some()>
+                <p>
+                    <label>
+                        "2. Pick the copy on the USB stick to check it: "
+                        <input type="file" accept=".json,application/json" data-testid="archive-verify" on:change=verify />
+                    </label>
+                </p>
+                <p>
+                    <button data-testid="archive-remove" on:click=remove
+                        disabled=move || !state.get().is_some_and(|a| a.verified)>
+                        "3. Remove the archived records from this browser"
+                    </button>
+                </p>
+            </Show>
+            <p class="muted">"An archive file opens read-only from the import above, with its charts and records."</p>
+            {move || message.get().map(|m| view! { <p class="outcome" data-testid="archive-message">{m}</p> })}
+        </section>
     }
 }

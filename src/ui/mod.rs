@@ -150,6 +150,10 @@ pub(crate) struct Trail {
     pub amend: Callback<Change>,
     /// Commit entries an import prepared (numbered after the current tip).
     pub append: Callback<Vec<crate::journal::Entry>>,
+    /// Show a records file read-only instead of the lab (`None` closes it).
+    pub view_archive: Callback<Option<(String, Lab)>>,
+    /// Show the shelf again after its journal was replaced (an archive removed).
+    pub refresh: Callback<()>,
     /// The record whose history is shown.
     pub history_of: RwSignal<Option<String>>,
     /// Bumped whenever the journal changed (for the trail and history views).
@@ -197,10 +201,16 @@ fn Bench() -> impl IntoView {
         move || set_clock.set(Utc::now()),
         std::time::Duration::from_secs(30),
     );
+    // An archive opened read-only is shown instead of the lab until it is closed.
+    let viewing = RwSignal::new(None::<(String, Lab)>);
     let show = move || {
-        let cell = shelf.get_value();
-        let s = cell.borrow();
-        set_lab.set(s.lab());
+        if let Some((_, archive)) = viewing.get_untracked() {
+            set_lab.set(Some(archive));
+        } else {
+            let cell = shelf.get_value();
+            let s = cell.borrow();
+            set_lab.set(s.lab());
+        }
         set_revision.update(|r| *r += 1);
     };
     let tabs = StoredValue::new_local(None::<store::Tabs>);
@@ -323,6 +333,14 @@ fn Bench() -> impl IntoView {
         }
     };
     let commit = move |change: Change| {
+        if let Some((name, _)) = viewing.get_untracked() {
+            set_problem.set(Some(format!(
+                "{name} is open read-only: nothing in it can be changed. Close it to work on \
+                 the lab."
+            )));
+            show();
+            return;
+        }
         let by = technician.get_untracked();
         let result = {
             let cell = shelf.get_value();
@@ -348,7 +366,7 @@ fn Bench() -> impl IntoView {
     });
     let amend = Callback::new(commit);
     let append = Callback::new(move |entries: Vec<crate::journal::Entry>| {
-        if entries.is_empty() {
+        if entries.is_empty() || viewing.get_untracked().is_some() {
             return;
         }
         shelf.get_value().borrow_mut().append(entries);
@@ -411,9 +429,17 @@ fn Bench() -> impl IntoView {
             Err(e) => set_problem.set(Some(e.0)),
         }
     };
+    let view_archive = Callback::new(move |file: Option<(String, Lab)>| {
+        viewing.set(file);
+        set_problem.set(None);
+        show();
+    });
+    let refresh = Callback::new(move |()| show());
     provide_context(Trail {
         amend,
         append,
+        view_archive,
+        refresh,
         history_of,
         revision,
         shelf,
@@ -516,6 +542,12 @@ fn Bench() -> impl IntoView {
                 />
             </label>
         </header>
+        {move || viewing.get().map(|(name, _)| view! {
+            <p class="demo-banner archive-banner" data-testid="archive-banner">
+                {format!("READ-ONLY: {name}, as it was written. Nothing here can be changed. ")}
+                <button data-testid="close-archive" on:click=move |_| view_archive.run(None)>"Close it and return to the lab"</button>
+            </p>
+        })}
         <Show when=in_demo>
             <p class="demo-banner" data-testid="demo-banner">
                 "DEMO LAB: invented data for practice. Nothing here is a patient result. "
@@ -571,6 +603,7 @@ fn Bench() -> impl IntoView {
             </ViewPanel>
             <ViewPanel view=View::Records active=active>
                 <exchange::ExchangePanel lab=lab clock=clock sheet=set_sheet />
+                <exchange::ArchivePanel lab=lab clock=clock />
                 <records::StorageMeter lab=lab clock=clock />
                 <records::DayTrail clock=clock />
             </ViewPanel>
