@@ -5,8 +5,17 @@
 //! with a single comma and no point is read with a decimal comma ("0,512"), since
 //! many labs write decimals that way; "0.1,0.2" is two numbers.
 
-/// Numbers in `text`; `what` names the field in messages.
+/// Numbers in `text`, each within the general bound of `engine::plausible::VALUE`;
+/// `what` names the field in messages.
 pub fn numbers(text: &str, what: &str) -> Result<Vec<f64>, String> {
+    parse(text, what)?
+        .into_iter()
+        .map(|v| crate::engine::plausible::VALUE.check(what, v))
+        .collect()
+}
+
+/// Numbers in `text` as typed (finite), before any range.
+fn parse(text: &str, what: &str) -> Result<Vec<f64>, String> {
     let mut out = Vec::new();
     for token in text
         .split(|c: char| c.is_whitespace() || c == ';')
@@ -31,7 +40,7 @@ pub fn numbers(text: &str, what: &str) -> Result<Vec<f64>, String> {
             if !v.is_finite() {
                 return Err(format!("{what}: {p:?} is not a finite number"));
             }
-            out.push(crate::engine::plausible::VALUE.check(what, v)?);
+            out.push(v);
         }
     }
     Ok(out)
@@ -225,8 +234,9 @@ pub struct TestForm {
     pub linearity_limit: String,
 }
 
+/// One number or none; the caller checks the field's own range.
 fn one_number(text: &str, what: &str) -> Result<Option<f64>, String> {
-    let v = numbers(text, what)?;
+    let v = parse(text, what)?;
     match v.as_slice() {
         [] => Ok(None),
         [x] => Ok(Some(*x)),
@@ -323,6 +333,7 @@ impl LevelForm {
         }
         let mean = one_number(&self.mean, "mean")?
             .ok_or("mean: give the target mean (from the insert until the lab has its own)")?;
+        crate::engine::plausible::VALUE.check("mean", mean)?;
         let sd = one_number(&self.sd, "SD")?.ok_or("SD: give the target SD, a number above 0")?;
         crate::engine::plausible::SD.check("SD", sd)?;
         Ok(crate::lab::ControlLevel {

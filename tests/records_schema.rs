@@ -1,5 +1,5 @@
 //! Every records file Cuvette writes (a backup with corrections, voids and an import
-//! event; a day file; the committed demo backup) is valid against
+//! event; a day file; a year's archive; the committed demo backup) is valid against
 //! `docs/records-file.schema.json`, checked by the `jsonschema` reference validator
 //! (PyPI, JSON Schema draft 2020-12); and files the schema must refuse are refused, so
 //! the schema is not vacuous.
@@ -81,6 +81,13 @@ fn every_file_cuvette_writes_is_valid_and_broken_ones_are_not() {
         serde_json::to_value(exchange::day_file(&lab, &entries, day, &Utc, at, "AK")).unwrap();
     let demo_backup: Value =
         serde_json::from_str(include_str!("../demo-data/demo-backup.json")).unwrap();
+    let later: DateTime<Utc> = "2027-02-01T08:00:00Z".parse().unwrap();
+    let chosen = exchange::archivable(&lab, &entries, 2026, later, &Utc);
+    assert!(!chosen.is_empty());
+    let archive = serde_json::to_value(exchange::year_file(
+        &lab, &entries, 2026, &chosen, later, "AK",
+    ))
+    .unwrap();
 
     let mut extra = backup.clone();
     extra["entries"][0]["note"] = json!("added by hand");
@@ -94,8 +101,20 @@ fn every_file_cuvette_writes_is_valid_and_broken_ones_are_not() {
     huge["entries"][k]["body"]["mean"] = json!(1e308);
     let mut no_day = day_file.clone();
     no_day.as_object_mut().unwrap().remove("day");
-    let got = errors(&[backup, day_file, demo_backup, extra, zero_sd, huge, no_day]);
-    for (k, what) in ["backup", "day file", "demo backup"].iter().enumerate() {
+    let got = errors(&[
+        backup,
+        day_file,
+        demo_backup,
+        archive,
+        extra,
+        zero_sd,
+        huge,
+        no_day,
+    ]);
+    for (k, what) in ["backup", "day file", "demo backup", "year archive"]
+        .iter()
+        .enumerate()
+    {
         assert!(got[k].is_empty(), "{what}: {:?}", got[k]);
     }
     for (k, what) in [
@@ -107,6 +126,6 @@ fn every_file_cuvette_writes_is_valid_and_broken_ones_are_not() {
     .iter()
     .enumerate()
     {
-        assert!(!got[3 + k].is_empty(), "the schema accepts {what}");
+        assert!(!got[4 + k].is_empty(), "the schema accepts {what}");
     }
 }

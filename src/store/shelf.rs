@@ -1,8 +1,10 @@
 //! The open book: its journal in memory, the lab replayed from it, and the way a change
 //! reaches both stores. A change becomes entries at once (shown as "saving"), is
 //! committed to IndexedDB with strict durability, and only then counts as saved; the
-//! localStorage mirror follows. If another tab wrote first, its entries are taken in
-//! and ours are renumbered after them, so neither tab's records are lost.
+//! localStorage mirror follows. Until the commit, the unsaved entries are also kept in a
+//! per-tab localStorage key (written at once), so a reload or a closed tab in between
+//! loses nothing: the next start adopts them. If another tab wrote first, its entries
+//! are taken in and ours are renumbered after them, so neither tab's records are lost.
 
 use std::cell::RefCell;
 use std::rc::Rc;

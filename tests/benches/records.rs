@@ -9,6 +9,7 @@
 use std::time::Instant;
 
 use chrono::{DateTime, Duration, Utc};
+use cuvette::exchange;
 use cuvette::journal::{changes, entries_for, founding_entries, replay};
 use cuvette::lab::{ControlLevel, ControlRun, Lab, RecordMeta};
 use cuvette::mirror::{KeyValue, MemoryStore, Mirror};
@@ -126,6 +127,38 @@ fn main() {
     saves.sort();
     let save = saves[saves.len() / 2];
     println!("native, one run: start-up replay {replay_time:?}; one save on top of it (diff, entries, mirror) median {save:?} of 50; replay/save = {:.1}", replay_time.as_secs_f64() / save.as_secs_f64());
+    // The three years as a backup file, imported into an empty PC and again into one
+    // that has it all (read and check, plan, apply), against one start-up replay.
+    let backup = exchange::to_text(&exchange::backup(&state.lab, &entries, now, "BM"));
+    let t = Instant::now();
+    let checked = exchange::read(&backup, usize::MAX).expect("the backup checks");
+    let plan = exchange::plan(&[], &checked);
+    let into_empty = exchange::apply(
+        &plan,
+        &Default::default(),
+        &replay(&[], None, &[]),
+        now,
+        "BM",
+        "b.json",
+    )
+    .expect("applied");
+    let import_empty = t.elapsed();
+    let t = Instant::now();
+    let checked = exchange::read(&backup, usize::MAX).expect("the backup checks");
+    let again = exchange::plan(&entries, &checked);
+    let import_again = t.elapsed();
+    assert!(again.is_noop() && into_empty.len() == entries.len() + 1);
+    let out = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/target/bench-backup-3-years.json"
+    );
+    std::fs::write(out, &backup).expect("write backup");
+    println!(
+        "native, one run: a {:.1} MB backup imported into an empty lab {import_empty:?}, the same \
+         file into the lab that has it {import_again:?}; import/replay = {:.1} (written to {out})",
+        backup.len() as f64 / 1e6,
+        import_empty.as_secs_f64() / replay_time.as_secs_f64()
+    );
     let store: serde_json::Map<String, serde_json::Value> = kv
         .keys()
         .into_iter()

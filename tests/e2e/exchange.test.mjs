@@ -115,7 +115,8 @@ test("an import shows a preview; a record changed on both PCs is resolved by cho
     assert.match(fromA.name, /^cuvette-demo-district-hospital-lab-invented-data-backup-2026-11-27\.json$/);
 
     await importFile(b.page, fromA.path);
-    assert.match(await byTestId(b.page, "import-counts").innerText(), /0 record\(s\) to add, 0 to update, \d+ already here, 1 conflict\(s\)/);
+    // A's own import event is a record B lacks; the level is the conflict.
+    assert.match(await byTestId(b.page, "import-counts").innerText(), /1 record\(s\) to add, 0 to update, \d+ already here, 1 conflict\(s\)/);
     const conflict = byTestId(b.page, "import-conflict");
     assert.match(await conflict.innerText(), /changed on both PCs.*this PC: .*mean 97.* by BB.*the file: .*mean 96\.5.* by AA/s);
     assert.equal(await byTestId(b.page, "import-confirm").isDisabled(), true, "a conflict must be decided first");
