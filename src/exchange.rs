@@ -238,7 +238,7 @@ fn older_export(
     top: &serde_json::Map<String, serde_json::Value>,
     text: &str,
 ) -> Result<RecordsFile, Refused> {
-    const FIELDS: [&str; 10] = [
+    const FIELDS: [&str; 11] = [
         "schema_version",
         "lab_name",
         "demo",
@@ -248,6 +248,7 @@ fn older_export(
         "materials",
         "calibrations",
         "instrument_log",
+        "patient_results",
         "temperature_limits",
     ];
     let required = [
@@ -426,6 +427,7 @@ fn summarize(file: &RecordsFile, replayed: &Replay) -> Summary {
         (Kind::Material, lab.materials.len()),
         (Kind::Calibration, lab.calibrations.len()),
         (Kind::InstrumentEntry, lab.instrument_log.len()),
+        (Kind::PatientResult, lab.patient_results.len()),
     ] {
         records.insert(kind.words().to_string(), n);
     }
@@ -707,7 +709,7 @@ pub fn apply(
 }
 
 /// The records of `year` (local to `tz`) that can leave the browser: QC runs,
-/// calibrations, instrument log entries, materials and records events whose every
+/// calibrations, instrument log entries, patient results, materials and records events whose every
 /// version was made in that year, the year being over at `now`. Kept whatever their
 /// age: the set-up (tests, control levels, settings), each test's newest usable
 /// calibration, and any material not yet expired at `now`.
@@ -730,6 +732,7 @@ pub fn archivable<Tz: TimeZone>(
                 Kind::ControlRun
                     | Kind::Calibration
                     | Kind::InstrumentEntry
+                    | Kind::PatientResult
                     | Kind::Material
                     | Kind::Event
             );

@@ -1,7 +1,8 @@
 //! Records as tables: for spreadsheets (CSV through the csv crate, RFC 4180) and for the
 //! printed day sheet, one table per kind of record — QC results with their decisions
-//! and the rules broken, calibrations with their verdicts, materials opened, the
-//! instrument log, and the trail. Times are ISO 8601 in the lab's local time with its
+//! and the rules broken, calibrations with their verdicts, patient results with their
+//! flags and whether they were held, materials opened, the instrument log, and the
+//! trail. Times are ISO 8601 in the lab's local time with its
 //! offset; each row carries the record id so it can be traced back.
 //!
 //! A spreadsheet runs a cell that begins with `=`, `+`, `-`, `@`, a tab or a carriage
@@ -246,6 +247,60 @@ where
     }
 }
 
+/// Patient results as recorded at the bench: test, sample, when, signal, result and
+/// unit, flag, what to do, whether it was held (QC not accepted), who, the calibration.
+pub fn patient_results<Tz: TimeZone>(lab: &Lab, keep: Keep, tz: &Tz) -> Table
+where
+    Tz::Offset: std::fmt::Display,
+{
+    let word = |v: serde_json::Result<serde_json::Value>| {
+        v.ok()
+            .and_then(|v| v.as_str().map(str::to_string))
+            .unwrap_or_default()
+    };
+    let rows = lab
+        .patient_results
+        .iter()
+        .filter(|r| keep(r.at))
+        .map(|r| {
+            let test = lab.tests.iter().find(|t| t.meta.id == r.test_id);
+            vec![
+                test.map_or(String::new(), |t| t.code.clone()),
+                r.sample_id.clone(),
+                time(r.at, tz),
+                r.signal.to_string(),
+                r.result.map_or(String::new(), |v| v.to_string()),
+                test.map_or(String::new(), |t| t.unit.clone()),
+                r.flag.map_or("", |f| f.letter()).to_string(),
+                word(serde_json::to_value(r.disposition)),
+                if r.held { "held" } else { "not held" }.to_string(),
+                r.meta.by.clone(),
+                r.calibration_id.clone(),
+                r.meta.id.clone(),
+            ]
+        })
+        .collect();
+    Table {
+        slug: "patient-results",
+        title: "Patient results",
+        headers: vec![
+            "test",
+            "sample",
+            "at",
+            "signal",
+            "result",
+            "unit",
+            "flag",
+            "disposition",
+            "held",
+            "by",
+            "calibration_id",
+            "record_id",
+        ],
+        rows,
+    }
+}
+
 /// What an entry says about its record, in a few words (the trail's summary).
 pub fn entry_summary(e: &Entry) -> String {
     let Some(b) = &e.body else {
@@ -257,6 +312,7 @@ pub fn entry_summary(e: &Entry) -> String {
     };
     [
         field("what"),
+        field("sample_id").map(|v| format!("sample {v}")),
         field("code"),
         field("name"),
         field("lot"),
@@ -328,6 +384,7 @@ where
     Ok(vec![
         qc_results(lab, &on_day, tz)?,
         calibrations(lab, &on_day, tz),
+        patient_results(lab, &on_day, tz),
         materials_opened(lab, &on_day, tz),
         instrument_log(lab, &on_day, tz),
         trail(&journal::day(entries, day, tz), tz),

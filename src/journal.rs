@@ -41,13 +41,14 @@ pub enum Kind {
     Material,
     Calibration,
     InstrumentEntry,
+    PatientResult,
     /// Something that happened to the records as a whole (an import, an archive),
     /// kept in the trail; it changes no record.
     Event,
 }
 
 impl Kind {
-    pub const ALL: [Kind; 8] = [
+    pub const ALL: [Kind; 9] = [
         Kind::Settings,
         Kind::Test,
         Kind::ControlLevel,
@@ -55,6 +56,7 @@ impl Kind {
         Kind::Material,
         Kind::Calibration,
         Kind::InstrumentEntry,
+        Kind::PatientResult,
         Kind::Event,
     ];
 
@@ -68,6 +70,7 @@ impl Kind {
             Kind::Material => "material",
             Kind::Calibration => "calibration",
             Kind::InstrumentEntry => "instrument log entry",
+            Kind::PatientResult => "patient result",
             Kind::Event => "records event",
         }
     }
@@ -241,6 +244,14 @@ fn records_of(lab: &Lab) -> Vec<(Kind, &str, Option<&RecordMeta>, Value)> {
             body(r),
         )
     }));
+    out.extend(lab.patient_results.iter().map(|r| {
+        (
+            Kind::PatientResult,
+            r.meta.id.as_str(),
+            Some(&r.meta),
+            body(r),
+        )
+    }));
     out
 }
 
@@ -297,6 +308,12 @@ pub fn changes(old: &Lab, new: &Lab) -> Vec<Change> {
         Kind::InstrumentEntry,
         &old.instrument_log,
         &new.instrument_log,
+        &mut out,
+    );
+    diff_list(
+        Kind::PatientResult,
+        &old.patient_results,
+        &new.patient_results,
         &mut out,
     );
     out
@@ -489,6 +506,7 @@ pub fn check_body(kind: Kind, body: &Value) -> Result<(), String> {
         Kind::Material => typed::<lab::MaterialRecord>(body),
         Kind::Calibration => typed::<lab::CalibrationRecord>(body),
         Kind::InstrumentEntry => typed::<lab::InstrumentEntry>(body),
+        Kind::PatientResult => typed::<lab::PatientResult>(body),
         Kind::Event => serde_json::from_value::<Event>(body.clone())
             .map(|_| ())
             .map_err(|e| format!("the records event cannot be read ({e})")),
@@ -715,6 +733,7 @@ fn apply(
         Kind::Material => put(&mut lab.materials, e.action, &e.id, v, e.seq)?,
         Kind::Calibration => put(&mut lab.calibrations, e.action, &e.id, v, e.seq)?,
         Kind::InstrumentEntry => put(&mut lab.instrument_log, e.action, &e.id, v, e.seq)?,
+        Kind::PatientResult => put(&mut lab.patient_results, e.action, &e.id, v, e.seq)?,
         Kind::Event => {
             let v = v.unwrap_or(Value::Null);
             crate::engine::plausible::check_json(&v)

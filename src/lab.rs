@@ -223,7 +223,8 @@ record!(
     ControlRun,
     MaterialRecord,
     CalibrationRecord,
-    InstrumentEntry
+    InstrumentEntry,
+    PatientResult
 );
 
 /// A record as JSON within the general bounds, then its own fields' ranges.
@@ -302,6 +303,17 @@ impl MaterialRecord {
 
 impl CalibrationRecord {
     fn check_fields(&self) -> Result<(), String> {
+        Ok(())
+    }
+}
+
+impl PatientResult {
+    fn check_fields(&self) -> Result<(), String> {
+        if self.sample_id.trim().is_empty() || self.sample_id.chars().count() > 40 {
+            return Err(
+                "patient result: the sample id is empty or longer than 40 characters".into(),
+            );
+        }
         Ok(())
     }
 }
@@ -420,6 +432,26 @@ pub struct InstrumentEntry {
     pub note: String,
 }
 
+/// A patient sample's result as worked out at the bench and recorded: the signal, the
+/// result from the calibration in use (none where it may not be reported), what to do,
+/// its flag, and whether it was held because QC was not accepted.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PatientResult {
+    pub meta: RecordMeta,
+    pub test_id: String,
+    /// The calibration the result was read from.
+    pub calibration_id: String,
+    pub at: DateTime<Utc>,
+    /// The lab's sample number.
+    pub sample_id: String,
+    pub signal: f64,
+    pub result: Option<f64>,
+    pub disposition: crate::engine::results::Disposition,
+    pub flag: Option<crate::engine::readings::ResultFlag>,
+    /// Held: QC of the day was not accepted when it was recorded.
+    pub held: bool,
+}
+
 /// Reaction temperature limits: 37 ± 0.5 °C unless the lab sets its own (common
 /// practice; use the analyzer maker's tolerance).
 pub fn default_temperature_limits() -> Limits {
@@ -449,6 +481,8 @@ pub struct Lab {
     pub calibrations: Vec<CalibrationRecord>,
     #[serde(default)]
     pub instrument_log: Vec<InstrumentEntry>,
+    #[serde(default)]
+    pub patient_results: Vec<PatientResult>,
     #[serde(default = "default_temperature_limits")]
     pub temperature_limits: Limits,
 }
@@ -466,6 +500,7 @@ impl Lab {
             materials: Vec::new(),
             calibrations: Vec::new(),
             instrument_log: Vec::new(),
+            patient_results: Vec::new(),
             temperature_limits: default_temperature_limits(),
         }
     }
@@ -591,6 +626,7 @@ impl Lab {
         self.materials.retain(|r| r.meta.id != id);
         self.calibrations.retain(|r| r.meta.id != id);
         self.instrument_log.retain(|r| r.meta.id != id);
+        self.patient_results.retain(|r| r.meta.id != id);
     }
 
     /// Records holding values no lab would record (what a damaged store or file, or an
@@ -611,6 +647,7 @@ impl Lab {
         each(&self.materials, &mut out);
         each(&self.calibrations, &mut out);
         each(&self.instrument_log, &mut out);
+        each(&self.patient_results, &mut out);
         out
     }
     /// Control levels of a test, in the order they were set up.

@@ -203,13 +203,14 @@ pub fn ExchangePanel(
             l.as_ref().map_or("No records yet.".to_string(), |l| {
                 format!(
                     "{} tests, {} control levels, {} QC runs, {} materials, {} calibrations, {} \
-                     instrument log entries.",
+                     instrument log entries, {} patient results.",
                     l.tests.len(),
                     l.control_levels.len(),
                     l.control_runs.len(),
                     l.materials.len(),
                     l.calibrations.len(),
-                    l.instrument_log.len()
+                    l.instrument_log.len(),
+                    l.patient_results.len()
                 )
             })
         })

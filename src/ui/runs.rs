@@ -84,7 +84,7 @@ fn TestRuns(
             <h3>{format!("{} {}", test.code, test.name)}</h3>
             <p class="muted">{summary}</p>
             <NewRun lab=lab.clone() test=test.clone() save=save technician=technician />
-            <SampleCalculator lab=lab.clone() test=test.clone() />
+            <SampleCalculator lab=lab.clone() test=test.clone() save=save technician=technician />
             <Show when=move || empty>
                 <p class="empty">"No QC runs recorded yet."</p>
             </Show>
@@ -259,7 +259,12 @@ fn NewRun(
 
 /// Patient samples of one test through the calibration in use, gated by today's QC.
 #[component]
-fn SampleCalculator(lab: Lab, test: TestSetup) -> impl IntoView {
+fn SampleCalculator(
+    lab: Lab,
+    test: TestSetup,
+    save: Callback<Lab>,
+    technician: ReadSignal<String>,
+) -> impl IntoView {
     let Some(cal) = lab.current_calibration(&test.meta.id).cloned() else {
         return view! { <p class="muted">"Patient samples: no accepted calibration yet; calibrate first."</p> }.into_any();
     };
@@ -343,6 +348,47 @@ fn SampleCalculator(lab: Lab, test: TestSetup) -> impl IntoView {
         ReadingMode::Kinetic => "one sample per line: id, then the absorbances at each interval",
     };
     let code = test.code.clone();
+    let (recorded, set_recorded) = signal(None::<String>);
+    let test_id = test.meta.id.clone();
+    let cal_id = cal.meta.id.clone();
+    let lab_now = lab.clone();
+    let rows_now = rows;
+    let record = move |_| {
+        let list = match rows_now() {
+            Ok(l) if !l.is_empty() => l,
+            Ok(_) => return set_recorded.set(Some("type the samples first".into())),
+            Err(e) => return set_recorded.set(Some(e)),
+        };
+        let mut changed = lab_now.clone();
+        for (sample_id, r) in &list {
+            let (meta, at) = match super::new_record(technician) {
+                Ok(m) => m,
+                Err(e) => return set_recorded.set(Some(e)),
+            };
+            changed.patient_results.push(crate::lab::PatientResult {
+                meta,
+                test_id: test_id.clone(),
+                calibration_id: cal_id.clone(),
+                at,
+                sample_id: sample_id.clone(),
+                signal: r.signal,
+                result: r.conc.filter(|_| r.disposition == Disposition::Report),
+                disposition: r.disposition,
+                flag: r.flag,
+                held,
+            });
+        }
+        save.run(changed);
+        set_recorded.set(Some(format!(
+            "{} result(s) recorded{}.",
+            list.len(),
+            if held {
+                ", held until QC is accepted"
+            } else {
+                ""
+            }
+        )));
+    };
     view! {
         <details class="samples">
             <summary data-testid=format!("samples-{code}")>"Patient samples"</summary>
@@ -373,8 +419,10 @@ fn SampleCalculator(lab: Lab, test: TestSetup) -> impl IntoView {
                             {rows.into_iter().map(|(id, r)| sample_row(id, r, held)).collect_view()}
                         </tbody>
                     </table>
+                    <p><button data-testid="record-samples" on:click=record.clone()>"Record these results"</button></p>
                 }.into_any(),
             }}
+            {move || recorded.get().map(|m| view! { <p class="outcome" data-testid="samples-recorded">{m}</p> })}
         </details>
     }
     .into_any()

@@ -57,6 +57,16 @@ test("the day's records of the demo's last day: one JSON that checks, and a CSV 
   try {
     await initials(page, "dx");
     await loadDemo(page);
+    // Two patient samples worked out and recorded (held: the demo's glucose QC is
+    // rejected today).
+    await byTestId(page, "nav-runs").click();
+    const glu = byTestId(page, "runs-GLU");
+    await glu.locator('[data-testid="samples-GLU"]').click();
+    await glu.locator('[data-testid="samples-blank"]').fill("0.012");
+    await glu.locator('[data-testid="samples-lines"]').fill("S-101 0.412\nS-102 0.250");
+    await glu.locator('[data-testid="record-samples"]').click();
+    assert.match(await glu.locator('[data-testid="samples-recorded"]').innerText(), /2 result\(s\) recorded, held until QC is accepted/);
+    await waitSaved(page);
     await byTestId(page, "nav-records").click();
     // Today (the fixed clock's 2026-11-27 in Nairobi) is the demo's last day.
     assert.equal(await byTestId(page, "export-day").inputValue(), "2026-11-27");
@@ -70,14 +80,18 @@ test("the day's records of the demo's last day: one JSON that checks, and a CSV 
     const summary = JSON.parse(execFileSync(calc, ["check-backup"], { input: json.text }).toString());
     assert.match(summary.chain, /^intact/);
     assert.ok(summary.records["QC run"] >= 3, JSON.stringify(summary));
-    const csvs = await downloads(page, byTestId(page, "export-day-csv"), 5);
+    const csvs = await downloads(page, byTestId(page, "export-day-csv"), 6);
     const byName = Object.fromEntries(csvs.map((c) => [c.name.replace(/^cuvette-demo-district-hospital-lab-invented-data-|-2026-11-27\.csv$/g, ""), c.text]));
-    assert.deepEqual(Object.keys(byName).sort(), ["calibrations", "instrument-log", "materials", "qc-results", "trail"]);
+    assert.deepEqual(Object.keys(byName).sort(), ["calibrations", "instrument-log", "materials", "patient-results", "qc-results", "trail"]);
     const qc = byName["qc-results"].trim().split("\r\n");
     assert.equal(qc[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,by,record_id");
     assert.ok(qc.length > 1);
     assert.ok(qc.slice(1).every((l) => /,2026-11-27T\d\d:\d\d:\d\d\+03:00,/.test(l) && /,(accept|warning|reject),/.test(l)), qc.join("\n"));
     assert.ok(qc.some((l) => /^GLU,.*,reject,/.test(l)), `the demo's glucose rejection is in the day's QC:\n${qc.join("\n")}`);
+    const patients = byName["patient-results"].trim().split("\r\n");
+    assert.equal(patients[0], "test,sample,at,signal,result,unit,flag,disposition,held,by,calibration_id,record_id");
+    assert.equal(patients.length, 3);
+    assert.ok(patients.slice(1).every((l) => /^GLU,S-10[12],2026-11-27T.*,held,DX,/.test(l)), patients.join("\n"));
     const trail = byName.trail.trim().split("\r\n");
     assert.match(trail[0], /^at,by,action,record,version,reason,summary,record_id,sha256$/);
     assert.ok(trail.slice(1).every((l) => l.startsWith("2026-11-27T")));
@@ -184,17 +198,17 @@ test("the printed day sheet: one page per section with the lab, the date, who wo
     await byTestId(page, "nav-records").click();
     await byTestId(page, "print-day-sheet").click();
     await byTestId(page, "day-sheet").waitFor();
-    assert.equal(await byTestId(page, "sheet-part").count(), 5);
+    assert.equal(await byTestId(page, "sheet-part").count(), 6);
     const pdf = join(mkdtempSync(join(tmpdir(), "sheet-")), "day.pdf");
     await page.pdf({ path: pdf, format: "A4" });
     const pages = Number(/Pages:\s+(\d+)/.exec(execFileSync("pdfinfo", [pdf]).toString())[1]);
-    assert.ok(pages >= 5, `${pages} pages`);
+    assert.ok(pages >= 6, `${pages} pages`);
     const text = execFileSync("pdftotext", ["-layout", pdf, "-"]).toString();
-    for (const want of ["Demo district hospital lab", "DEMO LAB", "2026-11-27", "QC results", "Calibrations", "Materials opened", "Instrument log", "Trail"]) {
+    for (const want of ["Demo district hospital lab", "DEMO LAB", "2026-11-27", "QC results", "Calibrations", "Patient results", "Materials opened", "Instrument log", "Trail"]) {
       assert.ok(text.includes(want), `the sheet lacks ${want}`);
     }
     assert.match(text, /Who worked: [A-Z]{2}/);
-    assert.equal(text.match(/Reviewed by \(name, signature\)/g).length, 5);
+    assert.equal(text.match(/Reviewed by \(name, signature\)/g).length, 6);
     // Only the sheet is printed: not the bench around it.
     assert.ok(!text.includes("Technician"), "the page header was printed");
     assert.ok(!text.includes("Carry the records to another PC"));
@@ -209,7 +223,7 @@ test("the printed day sheet: one page per section with the lab, the date, who wo
 test("extreme numbers typed into every numeric field of every form: the page stays alive and the lab loads afterwards", async () => {
   const profile = newProfile();
   let { context, page, problems } = await openApp(profile);
-  const saves = ["save-run", "save-calibration", "add-material", "add-instrument-entry", "add-level", "add-test", "save-correction"];
+  const saves = ["record-samples", "save-run", "save-calibration", "add-material", "add-instrument-entry", "add-level", "add-test", "save-correction"];
   let filled = 0;
   let clicked = 0;
   try {

@@ -2,6 +2,7 @@
 // folder per test (reused across relaunches to prove persistence), dist/cuvette.html
 // opened from file://. Every page runs on a fixed clock in a fixed time zone, so a test
 // gives the same answer at any hour and in any TZ the machine has.
+import { after } from "node:test";
 import { chromium } from "playwright-core";
 import { mkdtempSync, existsSync } from "node:fs";
 import { tmpdir } from "node:os";
@@ -11,6 +12,13 @@ import { fileURLToPath, pathToFileURL } from "node:url";
 const here = dirname(fileURLToPath(import.meta.url));
 export const singleFile = resolve(here, "../../dist/cuvette.html");
 export const fileUrl = pathToFileURL(singleFile).href;
+
+// A test that fails before closing its browser must not keep the run waiting: every
+// browser still open when a test file ends is closed.
+const openContexts = new Set();
+after(async () => {
+  for (const c of openContexts) await c.close().catch(() => {});
+});
 
 export function newProfile() {
   return mkdtempSync(join(tmpdir(), "cuvette-profile-"));
@@ -42,6 +50,8 @@ export async function openApp(profile, file = singleFile, { now = DEFAULT_NOW, z
     timezoneId: zone,
     env: { ...process.env, XDG_CONFIG_HOME: xdg, XDG_CACHE_HOME: xdg },
   });
+  openContexts.add(context);
+  context.on("close", () => openContexts.delete(context));
   await context.clock.install({ time: new Date(now) });
   const page = context.pages()[0] || (await context.newPage());
   const problems = [];
