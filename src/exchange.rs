@@ -503,29 +503,6 @@ impl Plan {
     }
 }
 
-/// A record's label from its body.
-pub fn label(e: &Entry) -> String {
-    let Some(b) = &e.body else {
-        return e.kind.words().to_string();
-    };
-    let field = |k: &str| b.get(k).and_then(|v| v.as_str()).map(str::to_string);
-    let mut parts = vec![e.kind.words().to_string()];
-    parts.extend(
-        [
-            "code",
-            "name",
-            "lot",
-            "run_at",
-            "performed_at",
-            "at",
-            "what",
-        ]
-        .into_iter()
-        .filter_map(field),
-    );
-    parts.join(" ")
-}
-
 /// Compare the file with this PC's journal, record by record (the lab's settings stay
 /// this PC's unless it has none).
 pub fn plan(ours: &[Entry], file: &Checked) -> Plan {
@@ -565,7 +542,7 @@ pub fn plan(ours: &[Entry], file: &Checked) -> Plan {
         let line = |versions: usize| PlanLine {
             kind: list[0].kind,
             id: id.to_string(),
-            label: label(last.unwrap_or(list[0])),
+            label: last.unwrap_or(list[0]).label(),
             versions,
         };
         if lacking.is_empty() {
@@ -580,7 +557,7 @@ pub fn plan(ours: &[Entry], file: &Checked) -> Plan {
             p.conflicts.push(Conflict {
                 kind: t.kind,
                 id: id.to_string(),
-                label: label(t),
+                label: t.label(),
                 ours: (*o).clone(),
                 theirs: t.clone(),
             });

@@ -150,6 +150,31 @@ impl Entry {
             && self.body == other.body
     }
 
+    /// The record in a few words from its content: its kind, then its code, name, lot,
+    /// sample or time where it has them.
+    pub fn label(&self) -> String {
+        let Some(b) = &self.body else {
+            return self.kind.words().to_string();
+        };
+        let field = |k: &str| b.get(k).and_then(|v| v.as_str()).map(str::to_string);
+        let mut parts = vec![self.kind.words().to_string()];
+        parts.extend(
+            [
+                "code",
+                "name",
+                "lot",
+                "sample_id",
+                "run_at",
+                "performed_at",
+                "at",
+                "what",
+            ]
+            .into_iter()
+            .filter_map(field),
+        );
+        parts.join(" ")
+    }
+
     /// Set `hash` from the content.
     pub fn seal(mut self) -> Entry {
         self.hash = self.computed_hash();
@@ -620,7 +645,13 @@ impl Replay {
                 continue;
             }
             if let Err(why) = apply(&mut self.lab, &mut self.versions, &mut self.created, e) {
-                self.set_aside.push(aside(why));
+                // Name the record, not only the entry number.
+                let named = why.replacen(
+                    &format!("entry {} ", e.seq),
+                    &format!("entry {} ({}) ", e.seq, e.label()),
+                    1,
+                );
+                self.set_aside.push(aside(named));
             }
         }
     }

@@ -1,7 +1,8 @@
 //! The calculator and the engine behind it never panic on a number that parses: every
 //! operation of `cuvette-calc`, fed with requests whose every number is replaced by an
 //! arbitrary one (extremes such as 1e308, 2^64, 3e9, subnormals, negatives, zero),
-//! answers exit 0 or exit 2 with `{"error": …}`, never a panic (proptest).
+//! answers exit 0 or exit 2 with `{"error": …}`, never a panic (proptest); and the
+//! engine entry points the bench calls directly do the same with arbitrary numbers.
 
 use proptest::prelude::*;
 use serde_json::{json, Value};
@@ -126,5 +127,73 @@ proptest! {
         }
         let (code, v) = answer(&req);
         prop_assert!(code == 0 || (code == 2 && v["error"].is_string()), "{} -> {}", req, v);
+    }
+}
+
+/// The engine entry points the bench calls (the multirule evaluation, monthly
+/// statistics, the Levey–Jennings series, a calibration fitted and judged, a patient
+/// sample through the curve, the export tables) with arbitrary finite numbers in the
+/// demo lab's targets, control values, calibrator readings and sample readings: values
+/// or messages, never a panic. (The plausible ranges keep such numbers out of a lab;
+/// this is the engine's own guarantee underneath them.)
+mod engine_entry_points {
+    use super::number;
+    use cuvette::engine::acceptance::{self, CalibrationReadings};
+    use cuvette::engine::calibration::{self, ReplicateUse, ReportableRange, Weighting};
+    use cuvette::engine::charts::LeveyJennings;
+    use cuvette::engine::qc;
+    use cuvette::engine::qcstats;
+    use cuvette::engine::readings::{Direction, Limits};
+    use cuvette::engine::results::{sample_result, SampleReading};
+    use cuvette::lab::Lab;
+    use proptest::prelude::*;
+
+    proptest! {
+        #![proptest_config(ProptestConfig { cases: 128, ..ProptestConfig::default() })]
+
+        #[test]
+        fn the_bench_computations_never_panic(xs in proptest::collection::vec(number(), 16)) {
+            let mut lab = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
+            lab.control_levels[0].mean = xs[0];
+            lab.control_levels[0].sd = xs[1];
+            lab.control_levels[1].sd = xs[2].abs();
+            lab.control_runs[0].values[0] = Some(xs[3]);
+            lab.control_runs[1].values[1] = Some(xs[4]);
+            for t in lab.tests.clone() {
+                let h = lab.control_history(&t.meta.id);
+                if let Ok(verdicts) = qc::evaluate(&h.targets, &h.values, &t.qc_rules) {
+                    let decisions: Vec<_> = verdicts.iter().map(|v| v.decision).collect();
+                    for (k, target) in h.targets.iter().enumerate() {
+                        let values: Vec<Option<f64>> = h.values.iter().map(|r| r[k]).collect();
+                        let _ = LeveyJennings::new("x", target.mean, target.sd, &values, &decisions);
+                        let flat: Vec<f64> = values.iter().flatten().copied().collect();
+                        let _ = qcstats::summarize(&flat);
+                    }
+                }
+            }
+            let cal = &lab.calibrations[0];
+            let mut calibrators: Vec<(f64, Vec<f64>)> =
+                cal.calibrators.iter().map(|c| (c.conc, c.absorbances.clone())).collect();
+            calibrators[0].1[0] = xs[5];
+            calibrators.last_mut().unwrap().0 = xs[6];
+            let blank = vec![xs[7]];
+            let points = calibration::blank_corrected(&blank, &calibrators);
+            for model in calibration::ModelKind::ALL {
+                let fit = calibration::fit(model, Weighting::None, ReplicateUse::Individual, &points);
+                let readings = CalibrationReadings { blank: blank.clone(), calibrators: calibrators.clone() };
+                let _ = acceptance::judge(&readings, fit.as_ref(), Some(&cal.curve), &Default::default());
+                if let Ok(f) = &fit {
+                    let range = ReportableRange::from_calibrators(calibrators.iter().map(|c| c.0), Some(xs[8].abs()));
+                    for reading in [
+                        SampleReading::EndPoint { sample: xs[9], reagent_blank: xs[10], sample_blank: Some(xs[11]) },
+                        SampleReading::FixedTime { a_t1: xs[12], a_t2: xs[13], direction: Direction::Increasing },
+                    ] {
+                        let _ = sample_result(&reading, &f.curve, range, Limits { low: Some(xs[14]), high: Some(xs[15]) }, Limits::default());
+                    }
+                }
+            }
+            let _ = cuvette::export::qc_results_csv(&lab, &chrono::Utc);
+            let _ = cuvette::export::calibrations_csv(&lab, &chrono::Utc);
+        }
     }
 }

@@ -389,7 +389,26 @@ fn SampleCalculator(
             }
         )));
     };
+    // What was recorded today for this test (shown outside the form, which is drawn
+    // afresh when the lab changes).
+    let today = Local::now().date_naive();
+    let recorded_today: Vec<String> = lab
+        .patient_results
+        .iter()
+        .filter(|r| r.test_id == test.meta.id && r.at.with_timezone(&Local).date_naive() == today)
+        .map(|r| format!("{}{}", r.sample_id, if r.held { " (held)" } else { "" }))
+        .collect();
+    let recorded_line = (!recorded_today.is_empty()).then(|| {
+        view! {
+            <p class="muted" data-testid="recorded-results">{format!(
+                "Patient results recorded today: {} — {}",
+                recorded_today.len(),
+                recorded_today.join(", ")
+            )}</p>
+        }
+    });
     view! {
+        {recorded_line}
         <details class="samples">
             <summary data-testid=format!("samples-{code}")>"Patient samples"</summary>
             <p class=format!("gate {gate_class}") data-testid="qc-gate">{gate_text}</p>

@@ -65,7 +65,8 @@ test("the day's records of the demo's last day: one JSON that checks, and a CSV 
     await glu.locator('[data-testid="samples-blank"]').fill("0.012");
     await glu.locator('[data-testid="samples-lines"]').fill("S-101 0.412\nS-102 0.250");
     await glu.locator('[data-testid="record-samples"]').click();
-    assert.match(await glu.locator('[data-testid="samples-recorded"]').innerText(), /2 result\(s\) recorded, held until QC is accepted/);
+    await glu.locator('[data-testid="recorded-results"]').waitFor();
+    assert.match(await glu.locator('[data-testid="recorded-results"]').innerText(), /Patient results recorded today: 2 — S-101 \(held\), S-102 \(held\)/);
     await waitSaved(page);
     await byTestId(page, "nav-records").click();
     // Today (the fixed clock's 2026-11-27 in Nairobi) is the demo's last day.
