@@ -162,6 +162,30 @@ test("an import shows a preview; a record changed on both PCs is resolved by cho
   }
 });
 
+test("a records file dropped onto the import area gives the same preview as the file picker", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-records").click();
+    const text = readFileSync(demoBackup, "utf8");
+    // What the browser hands over when a file is dragged from the USB stick's folder.
+    await byTestId(page, "import-drop").evaluate((zone, t) => {
+      const data = new DataTransfer();
+      data.items.add(new File([t], "from-the-stick.json", { type: "application/json" }));
+      zone.dispatchEvent(new DragEvent("dragover", { dataTransfer: data, bubbles: true, cancelable: true }));
+      zone.dispatchEvent(new DragEvent("drop", { dataTransfer: data, bubbles: true, cancelable: true }));
+    }, text);
+    await byTestId(page, "import-preview").waitFor();
+    assert.match(await byTestId(page, "import-preview").innerText(), /^from-the-stick\.json: a full backup of Demo district hospital lab/);
+    assert.match(await byTestId(page, "import-counts").innerText(), /^\d+ record\(s\) to add, 0 to update, 0 already here, 0 conflict\(s\)\.$/);
+    await byTestId(page, "import-cancel").click();
+    assert.equal(await byTestId(page, "import-preview").count(), 0);
+    assert.equal(await byTestId(page, "records-summary").innerText(), "No records yet.");
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
 test("a tampered file and another program's JSON are refused with a message naming the place; nothing changes", async () => {
   const dir = mkdtempSync(join(tmpdir(), "usb-"));
   const { context, page, problems } = await openApp(newProfile());
