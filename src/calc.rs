@@ -100,6 +100,16 @@ Operations ("op"):
                  -> {"flag": "L"|"H"|"LL"|"HH"|null, "meaning"}
   convert        {"op":"convert","analyte":"GLU","value":..,"from":"mg/dL","to":"mmol/L"}
                  -> {"value": ..}
+  rejection-probability
+                 {"op":"rejection-probability","rules":["1-3s","2-2s",...],"n_per_run":2,
+                  "systematic_shift_sd":0,"random_error_factor":1}
+                 -> {"probability":p,"std_error":e}: the chance that a run with that error
+                    is rejected by the rule set (every listed rule rejects). A single
+                    1-ks rule in closed form (e = 0); any other set by seeded Monte Carlo
+                    through the bench's rule engine, 12 runs in control then the run
+                    under test; optional "trials" (100000) and "seed" (1).
+  sigma          {"op":"sigma","tea_pct":..,"bias_pct":..,"cv_pct":..}
+                 -> {"sigma": (tea_pct - |bias_pct|) / cv_pct}
 "#;
 
 /// `cuvette-calc check-backup`: check a records file (a backup or a day file) and
@@ -147,6 +157,8 @@ fn answer(input: &str) -> R<Value> {
         "dilution" => op_dilution(obj),
         "flag" => op_flag(obj),
         "convert" => op_convert(obj),
+        "rejection-probability" => op_rejection_probability(obj),
+        "sigma" => op_sigma(obj),
         other => Err(format!(
             "op: {other:?} is not an operation; use fit, inverse, kinetic, enzyme-factor, qc, \
              qc-stats, stability, end-point, fixed-time, dilution, flag or convert"
@@ -376,12 +388,14 @@ fn op_enzyme_factor(obj: &Map<String, Value>) -> R<Value> {
     Ok(json!({ "factor": f, "epsilon": epsilon }))
 }
 
-fn op_qc(obj: &Map<String, Value>) -> R<Value> {
-    let rules: Vec<RuleSetting> = match obj.get("rules") {
-        None | Some(Value::Null) => ["1-2s", "1-3s", "2-2s", "R-4s", "4-1s", "10-x"]
+/// The `rules` field: names, or `{"rule","action"}`; the default multirule set when
+/// absent.
+fn rule_settings(obj: &Map<String, Value>) -> R<Vec<RuleSetting>> {
+    match obj.get("rules") {
+        None | Some(Value::Null) => Ok(["1-2s", "1-3s", "2-2s", "R-4s", "4-1s", "10-x"]
             .iter()
             .filter_map(|c| c.parse::<Rule>().ok().map(RuleSetting::default_for))
-            .collect(),
+            .collect()),
         Some(_) => array(obj, "rules")?
             .iter()
             .enumerate()
@@ -409,8 +423,12 @@ fn op_qc(obj: &Map<String, Value>) -> R<Value> {
                 }
                 _ => Err(format!("rules[{i}]: give a rule name such as \"2-2s\"")),
             })
-            .collect::<R<Vec<_>>>()?,
-    };
+            .collect::<R<Vec<_>>>(),
+    }
+}
+
+fn op_qc(obj: &Map<String, Value>) -> R<Value> {
+    let rules = rule_settings(obj)?;
     let levels = array(obj, "levels")?
         .iter()
         .enumerate()
@@ -643,6 +661,40 @@ fn op_convert(obj: &Map<String, Value>) -> R<Value> {
     let to = text(obj, "to")?.ok_or("to: missing unit")?;
     let v = units::convert(analyte, num(obj.get("value"), "value")?, from, to)?;
     Ok(json!({ "value": v }))
+}
+
+fn op_rejection_probability(obj: &Map<String, Value>) -> R<Value> {
+    use crate::engine::planning;
+    let rules: Vec<Rule> = rule_settings(obj)?.into_iter().map(|r| r.rule).collect();
+    let n = num(obj.get("n_per_run"), "n_per_run")?;
+    if n.fract() != 0.0 || !(1.0..=6.0).contains(&n) {
+        return Err("n_per_run: give 1 to 6 control results per run".into());
+    }
+    let error = planning::Error {
+        shift_sd: opt_num(obj.get("systematic_shift_sd"), "systematic_shift_sd")?.unwrap_or(0.0),
+        random_factor: opt_num(obj.get("random_error_factor"), "random_error_factor")?
+            .unwrap_or(1.0),
+    };
+    let trials = opt_num(obj.get("trials"), "trials")?.unwrap_or(100_000.0);
+    let seed = opt_num(obj.get("seed"), "seed")?.unwrap_or(1.0);
+    if trials.fract() != 0.0 || !(1_000.0..=10_000_000.0).contains(&trials) {
+        return Err("trials: give a whole number from 1000 to 10 000 000".into());
+    }
+    if seed.fract() != 0.0 || !(0.0..=9_007_199_254_740_992.0).contains(&seed) {
+        return Err("seed: give a whole number from 0".into());
+    }
+    let p =
+        planning::rejection_probability(&rules, n as usize, error, trials as usize, seed as u64)?;
+    Ok(json!({ "probability": p.p, "std_error": p.std_error }))
+}
+
+fn op_sigma(obj: &Map<String, Value>) -> R<Value> {
+    let sigma = crate::engine::planning::sigma(
+        num(obj.get("tea_pct"), "tea_pct")?,
+        num(obj.get("bias_pct"), "bias_pct")?,
+        num(obj.get("cv_pct"), "cv_pct")?,
+    )?;
+    Ok(json!({ "sigma": sigma }))
 }
 
 #[cfg(test)]

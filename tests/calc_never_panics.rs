@@ -44,6 +44,9 @@ fn templates() -> Vec<Value> {
         json!({"op":"dilution","diluted_reading":120,"factor":5,"linearity_limit":400}),
         json!({"op":"flag","value":5,"reference":{"low":3,"high":6},"critical":{"low":2,"high":20}}),
         json!({"op":"convert","analyte":"GLU","value":100,"from":"mg/dL","to":"mmol/L"}),
+        json!({"op":"rejection-probability","rules":["1-3s","2-2s"],"n_per_run":2,
+            "systematic_shift_sd":1,"random_error_factor":1,"trials":1000,"seed":3}),
+        json!({"op":"sigma","tea_pct":10,"bias_pct":1,"cv_pct":1.5}),
     ]
 }
 
@@ -112,7 +115,7 @@ proptest! {
     #![proptest_config(ProptestConfig { cases: 256, ..ProptestConfig::default() })]
 
     #[test]
-    fn no_operation_panics_on_any_number(which in 0..19usize, with in proptest::collection::vec(number(), 1..12), every in 1..4usize) {
+    fn no_operation_panics_on_any_number(which in 0..21usize, with in proptest::collection::vec(number(), 1..12), every in 1..4usize) {
         let mut req = templates()[which].clone();
         // Replace every number, or keep most of the valid request and change some.
         let mut k = 0;

@@ -45,9 +45,11 @@ fn help_lists_every_operation() {
         "dilution",
         "flag",
         "convert",
+        "sigma",
     ] {
         assert!(text.contains(&format!("  {op} ")), "--help misses {op}");
     }
+    assert!(text.contains("  rejection-probability\n"));
 }
 
 #[test]

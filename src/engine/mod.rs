@@ -12,6 +12,7 @@ pub mod acceptance;
 pub mod calibration;
 pub mod charts;
 pub mod lm;
+pub mod planning;
 pub mod plausible;
 pub mod qc;
 pub mod qcstats;
