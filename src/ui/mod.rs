@@ -9,6 +9,7 @@ pub(crate) mod chart;
 mod exchange;
 mod instrument;
 mod materials;
+mod planning;
 mod records;
 mod runs;
 mod setup;
@@ -594,6 +595,7 @@ fn Bench() -> impl IntoView {
             </ViewPanel>
             <ViewPanel view=View::Charts active=active>
                 <ControlCharts lab=lab />
+                <planning::PlanningPanel lab=lab />
             </ViewPanel>
             <ViewPanel view=View::Materials active=active>
                 <materials::MaterialsView lab=lab save=save technician=technician clock=clock />

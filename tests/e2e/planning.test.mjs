@@ -1,0 +1,40 @@
+// QC planning in the browser: each test's rejecting rules give the chance of rejecting a
+// good run and of catching a shift of 1–4 SD, from a Monte Carlo that runs in slices (the
+// page answers meanwhile, a progress bar shows how far, and it can be cancelled).
+// Expected shape from the rule definitions: a small false-rejection chance that grows
+// with the shift; the demo's glucose uses the default rejecting rules 1-3s, 2-2s, R-4s,
+// 4-1s, 10-x with two levels (those figures are in the planning reference test).
+import { test } from "node:test";
+import assert from "node:assert/strict";
+import { openApp, newProfile, byTestId, waitSaved } from "./helpers.mjs";
+
+test("rejection chances for each test's rules: computed in slices, rising with the shift, and cancellable", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await waitSaved(page);
+    await byTestId(page, "nav-charts").click();
+    const glu = byTestId(page, "planning-GLU");
+    assert.match(await glu.innerText(), /rejecting rules 1-3s, 2-2s, R-4s, 4-1s, 10-x; 2 control result\(s\) per run/);
+    await glu.locator('[data-testid="plan-run-GLU"]').click();
+    await glu.locator('[data-testid="plan-progress"]').waitFor();
+    // The page answers while it computes.
+    assert.equal(await page.evaluate(() => 1 + 1), 2);
+    await page.waitForFunction(() => document.querySelectorAll('[data-testid="planning-GLU"] [data-testid="plan-row"]').length === 5, null, { timeout: 180000 });
+    const p = (await glu.locator('[data-testid="plan-row"] td:nth-child(2)').allInnerTexts()).map(Number);
+    assert.ok(p[0] > 0.005 && p[0] < 0.05, `false rejection ${p[0]}`);
+    for (let k = 1; k < p.length; k++) assert.ok(p[k] > p[k - 1], `rises with the shift: ${p}`);
+    assert.ok(p[4] > 0.95, `a 4 SD shift is caught: ${p[4]}`);
+    assert.equal(await glu.locator('[data-testid="plan-progress"]').count(), 0);
+
+    const other = byTestId(page, "planning-CREA");
+    await other.locator('[data-testid="plan-run-CREA"]').click();
+    await other.locator('[data-testid="plan-cancel"]').click();
+    await other.locator('[data-testid="plan-message"]').waitFor();
+    assert.match(await other.locator('[data-testid="plan-message"]').innerText(), /^Cancelled after \d+ simulated runs/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
