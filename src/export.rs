@@ -301,6 +301,140 @@ where
     }
 }
 
+/// The monthly QC review: per test and level, the month's n, mean, SD and CV, bias %
+/// and SDI against the level's target, the warnings and rejections counted by rule,
+/// and the previous month and the cumulative figures beside them. Results of rejected
+/// runs do not count in the statistics (as in `engine::qcstats`); every run of the
+/// month counts for the rule tallies. bias % = (mean − target) / target × 100;
+/// SDI = (mean − target) / target SD.
+pub fn monthly_review<Tz: TimeZone>(
+    lab: &Lab,
+    year: i32,
+    month: u32,
+    tz: &Tz,
+) -> Result<Table, String> {
+    use crate::engine::qcstats::{self, ControlResult, Summary};
+    use chrono::Datelike;
+    let key = |y: i32, m: u32| format!("{y:04}-{m:02}");
+    let this = key(year, month);
+    let previous = if month == 1 {
+        key(year - 1, 12)
+    } else {
+        key(year, month - 1)
+    };
+    let fmt = |v: Option<f64>, digits: usize| v.map_or(String::new(), |v| format!("{v:.digits$}"));
+    let stats = |s: Option<&Summary>| -> [String; 4] {
+        [
+            s.map_or("0".into(), |s| s.n.to_string()),
+            fmt(s.map(|s| s.mean), 3),
+            fmt(s.and_then(|s| s.sd), 3),
+            fmt(s.and_then(|s| s.cv_pct), 2),
+        ]
+    };
+    let mut rows = Vec::new();
+    for t in &lab.tests {
+        let h = lab.control_history(&t.meta.id);
+        let verdicts = qc::evaluate(&h.targets, &h.values, &t.qc_rules).map_err(|e| e.0)?;
+        for (k, level) in h.levels.iter().enumerate() {
+            let results: Vec<ControlResult> = h
+                .runs
+                .iter()
+                .zip(&h.values)
+                .zip(&verdicts)
+                .filter_map(|((run, values), v)| {
+                    values[k].map(|value| ControlResult {
+                        at: run.run_at,
+                        value,
+                        run_rejected: v.decision == qc::Decision::Reject,
+                        excluded: false,
+                    })
+                })
+                .collect();
+            let months = qcstats::by_month(&results, tz);
+            let find = |m: &str| months.iter().find(|(k, _)| k == m).map(|(_, s)| s);
+            let now = find(&this);
+            let target = h.targets[k];
+            let bias = now.map(|s| (s.mean - target.mean) / target.mean * 100.0);
+            let sdi = now.map(|s| (s.mean - target.mean) / target.sd);
+            let mut warnings = std::collections::BTreeMap::<&str, usize>::new();
+            let mut rejections = std::collections::BTreeMap::<&str, usize>::new();
+            for (run, v) in h.runs.iter().zip(&verdicts) {
+                let local = run.run_at.with_timezone(tz);
+                if (local.year(), local.month()) != (year, month) {
+                    continue;
+                }
+                for x in v.violations.iter().filter(|x| x.levels.contains(&k)) {
+                    let tally = match x.action {
+                        qc::Action::Warning => &mut warnings,
+                        qc::Action::Reject => &mut rejections,
+                    };
+                    *tally.entry(x.rule.code()).or_default() += 1;
+                }
+            }
+            let tally = |m: &std::collections::BTreeMap<&str, usize>| {
+                m.iter()
+                    .map(|(r, n)| format!("{r} ×{n}"))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            };
+            let mut row = vec![
+                t.code.clone(),
+                level.name.clone(),
+                level.lot.clone(),
+                t.unit.clone(),
+                target.mean.to_string(),
+                target.sd.to_string(),
+            ];
+            row.extend(stats(now));
+            row.push(fmt(bias, 2));
+            row.push(fmt(sdi, 2));
+            row.push(tally(&warnings));
+            row.push(tally(&rejections));
+            row.extend(stats(find(&previous)));
+            // Cumulative up to the end of the month reviewed.
+            let upto: Vec<ControlResult> = results
+                .iter()
+                .copied()
+                .filter(|r| {
+                    let l = r.at.with_timezone(tz);
+                    (l.year(), l.month()) <= (year, month)
+                })
+                .collect();
+            row.extend(stats(qcstats::cumulative(&upto).as_ref()));
+            rows.push(row);
+        }
+    }
+    Ok(Table {
+        slug: "qc-review",
+        title: "Monthly QC review",
+        headers: vec![
+            "test",
+            "level",
+            "lot",
+            "unit",
+            "target_mean",
+            "target_sd",
+            "n",
+            "mean",
+            "sd",
+            "cv_pct",
+            "bias_pct",
+            "sdi",
+            "warnings",
+            "rejections",
+            "previous_n",
+            "previous_mean",
+            "previous_sd",
+            "previous_cv_pct",
+            "cumulative_n",
+            "cumulative_mean",
+            "cumulative_sd",
+            "cumulative_cv_pct",
+        ],
+        rows,
+    })
+}
+
 /// What an entry says about its record, in a few words (the trail's summary).
 pub fn entry_summary(e: &Entry) -> String {
     let Some(b) = &e.body else {

@@ -14,6 +14,13 @@ use crate::journal::Entry;
 use crate::lab::Lab;
 use crate::store;
 
+/// A printable sheet: one day's records, or a month's QC review.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Sheet {
+    Day(NaiveDate),
+    Month(i32, u32),
+}
+
 /// The largest file an import reads, in bytes (a three-year backup is far smaller).
 const LARGEST_IMPORT: usize = 100_000_000;
 
@@ -32,8 +39,8 @@ pub fn ExchangePanel(
     lab: ReadSignal<Option<Lab>>,
     /// The current time, ticking.
     clock: ReadSignal<chrono::DateTime<Utc>>,
-    /// The day sheet to print, when open.
-    sheet: WriteSignal<Option<NaiveDate>>,
+    /// The sheet to print, when open.
+    sheet: WriteSignal<Option<Sheet>>,
 ) -> impl IntoView {
     let trail = expect_context::<Trail>();
     let (outcome, set_outcome) = signal::<Option<String>>(None);
@@ -334,7 +341,7 @@ pub fn ExchangePanel(
                 " "
                 <button data-testid="export-day-csv" on:click=day_csv>"The day's tables (CSV)"</button>
                 " "
-                <button data-testid="print-day-sheet" on:click=move |_| sheet.set(Some(chosen_day()))>
+                <button data-testid="print-day-sheet" on:click=move |_| sheet.set(Some(Sheet::Day(chosen_day())))>
                     "Print the day sheet"
                 </button>
             </p>
@@ -368,15 +375,31 @@ pub fn ExchangePanel(
     }
 }
 
-/// The printable day sheet: one page per table, each with the lab, the date, who
-/// worked and a line for a signature.
+/// A table on screen or on the printed sheet.
+fn table_view(t: export::Table) -> AnyView {
+    if t.rows.is_empty() {
+        return view! { <p class="empty">"None in this period."</p> }.into_any();
+    }
+    view! {
+        <table data-testid=format!("table-{}", t.slug)>
+            <thead><tr>{t.headers.iter().map(|h| view! { <th>{*h}</th> }).collect_view()}</tr></thead>
+            <tbody>{t.rows.into_iter().map(|r| view! {
+                <tr>{r.into_iter().map(|c| view! { <td>{c}</td> }).collect_view()}</tr>
+            }).collect_view()}</tbody>
+        </table>
+    }
+    .into_any()
+}
+
+/// The printable sheet: one page per table, each with the lab, the period, who worked
+/// and a line for a signature.
 #[component]
 pub fn DaySheet(
     /// The lab being worked on.
     lab: ReadSignal<Option<Lab>>,
-    /// The day shown, when open.
-    sheet: ReadSignal<Option<NaiveDate>>,
-    set_sheet: WriteSignal<Option<NaiveDate>>,
+    /// The sheet shown, when open.
+    sheet: ReadSignal<Option<Sheet>>,
+    set_sheet: WriteSignal<Option<Sheet>>,
 ) -> impl IntoView {
     let trail = expect_context::<Trail>();
     Effect::new(move |_| {
@@ -398,25 +421,46 @@ pub fn DaySheet(
         }
     };
     move || {
-        let day = sheet.get()?;
+        let which = sheet.get()?;
         let l = lab.get()?;
         let entries: Vec<Entry> = trail.shelf.get_value().borrow().entries_all();
-        let tables = match export::day_tables(&l, &entries, day, &Local) {
+        let (period, tables, who) = match which {
+            Sheet::Day(day) => (
+                day.to_string(),
+                export::day_tables(&l, &entries, day, &Local),
+                Some(export::who_worked(&entries, day, &Local).join(", ")),
+            ),
+            Sheet::Month(y, m) => (
+                format!("{y:04}-{m:02}"),
+                export::monthly_review(&l, y, m, &Local).map(|t| vec![t]),
+                None,
+            ),
+        };
+        let tables = match tables {
             Ok(t) => t,
             Err(e) => return Some(view! { <p class="problem">{e}</p> }.into_any()),
         };
-        let who = export::who_worked(&entries, day, &Local).join(", ");
         let head = {
             let name = l.lab_name.clone();
             let demo = l.demo;
-            let who = who.clone();
+            let period = period.clone();
             move |title: &str| {
+                let who = who.clone().map(|w| {
+                    format!(
+                        "Who worked: {}",
+                        if w.is_empty() {
+                            "nobody recorded anything"
+                        } else {
+                            &w
+                        }
+                    )
+                });
                 view! {
                     <header class="sheet-head">
                         <strong>{name.clone()}</strong>
                         {demo.then_some(" — DEMO LAB, invented data")}
-                        <span>{format!(" — {title} — {day}")}</span>
-                        <div>{format!("Who worked: {}", if who.is_empty() { "nobody recorded anything" } else { &who })}</div>
+                        <span>{format!(" — {title} — {period}")}</span>
+                        {who.map(|w| view! { <div>{w}</div> })}
                     </header>
                 }
             }
@@ -424,23 +468,12 @@ pub fn DaySheet(
         let parts = tables
             .into_iter()
             .map(|t| {
-                let empty = t.rows.is_empty();
+                let title = t.title;
                 view! {
                     <section class="sheet-part" data-testid="sheet-part">
-                        {head(t.title)}
-                        <h3>{t.title}</h3>
-                        {if empty {
-                            view! { <p class="empty">"None on this day."</p> }.into_any()
-                        } else {
-                            view! {
-                                <table>
-                                    <thead><tr>{t.headers.iter().map(|h| view! { <th>{*h}</th> }).collect_view()}</tr></thead>
-                                    <tbody>{t.rows.into_iter().map(|r| view! {
-                                        <tr>{r.into_iter().map(|c| view! { <td>{c}</td> }).collect_view()}</tr>
-                                    }).collect_view()}</tbody>
-                                </table>
-                            }.into_any()
-                        }}
+                        {head(title)}
+                        <h3>{title}</h3>
+                        {table_view(t)}
                         <p class="signature">"Reviewed by (name, signature): ______________________________   Date: ____________"</p>
                     </section>
                 }
@@ -452,7 +485,7 @@ pub fn DaySheet(
                     <p class="no-print">
                         <button data-testid="sheet-print" on:click=print>"Print or save as PDF"</button>
                         " "
-                        <button data-testid="sheet-close" on:click=move |_| set_sheet.set(None)>"Close the day sheet"</button>
+                        <button data-testid="sheet-close" on:click=move |_| set_sheet.set(None)>"Close the sheet"</button>
                     </p>
                     <p class="caution">"Cuvette supports the lab's own QC policy and the maker's instructions; \
                         a released result is the responsibility of qualified staff."</p>
@@ -461,6 +494,75 @@ pub fn DaySheet(
             }
             .into_any(),
         )
+    }
+}
+
+/// The monthly QC review on screen, as CSV, and as a printed sheet.
+#[component]
+pub fn MonthlyReview(
+    /// The lab being worked on.
+    lab: ReadSignal<Option<Lab>>,
+    /// The current time, ticking.
+    clock: ReadSignal<chrono::DateTime<Utc>>,
+    /// Where the printed sheet opens.
+    sheet: WriteSignal<Option<Sheet>>,
+) -> impl IntoView {
+    use chrono::Datelike;
+    let (chosen, set_chosen) = signal(None::<(i32, u32)>);
+    let month = move || {
+        chosen.get().unwrap_or_else(|| {
+            let now = clock.get().with_timezone(&Local);
+            (now.year(), now.month())
+        })
+    };
+    let (message, set_message) = signal(None::<String>);
+    let table = move || {
+        let (y, m) = month();
+        lab.with(|l| l.as_ref().map(|l| export::monthly_review(l, y, m, &Local)))
+    };
+    let csv = move |_| {
+        let (y, m) = month();
+        let Some(l) = lab.get_untracked() else { return };
+        let name = export::file_name(
+            &l.lab_name,
+            "qc-review",
+            NaiveDate::from_ymd_opt(y, m, 1).unwrap_or_default(),
+            "csv",
+        );
+        let text = export::monthly_review(&l, y, m, &Local).and_then(|t| export::to_csv(&t));
+        match text.and_then(|t| store::download(&name, "text/csv", &t).map_err(|e| e.0)) {
+            Ok(()) => set_message.set(Some(format!("Offered {name}."))),
+            Err(e) => set_message.set(Some(e)),
+        }
+    };
+    view! {
+        <section class="card wide" data-testid="monthly-review">
+            <h3>"Monthly QC review"</h3>
+            <p>
+                <label>
+                    "Month "
+                    <input type="month" data-testid="review-month"
+                        prop:value=move || { let (y, m) = month(); format!("{y:04}-{m:02}") }
+                        on:change=move |ev| {
+                            let v = event_target_value(&ev);
+                            let parsed = v.split_once('-').and_then(|(y, m)| Some((y.parse().ok()?, m.parse().ok()?)));
+                            set_chosen.set(parsed.filter(|(_, m): &(i32, u32)| (1..=12).contains(m)));
+                        } />
+                </label>
+                " "
+                <button data-testid="export-review-csv" on:click=csv>"CSV"</button>
+                " "
+                <button data-testid="print-month-sheet" on:click=move |_| { let (y, m) = month(); sheet.set(Some(Sheet::Month(y, m))); }>
+                    "Print the month's sheet"
+                </button>
+            </p>
+            {move || match table() {
+                None => ().into_any(),
+                Some(Ok(t)) => table_view(t),
+                Some(Err(e)) => view! { <p class="problem">{e}</p> }.into_any(),
+            }}
+            {move || message.get().map(|m| view! { <p class="outcome">{m}</p> })}
+        </section>
     }
 }
 

@@ -186,7 +186,7 @@ fn Bench() -> impl IntoView {
     let (notes, set_notes) = signal::<Vec<String>>(Vec::new());
     let (book, set_book) = signal(store::open_book());
     let (revision, set_revision) = signal(0u64);
-    let (sheet, set_sheet) = signal(None::<chrono::NaiveDate>);
+    let (sheet, set_sheet) = signal(None::<exchange::Sheet>);
     let history_of = RwSignal::new(None::<String>);
     let shelf: ShelfCell = StoredValue::new_local(std::rc::Rc::new(std::cell::RefCell::new(
         store::shelf::empty(book.get_untracked(), None),
@@ -595,6 +595,7 @@ fn Bench() -> impl IntoView {
             </ViewPanel>
             <ViewPanel view=View::Charts active=active>
                 <ControlCharts lab=lab />
+                <exchange::MonthlyReview lab=lab clock=clock sheet=set_sheet />
                 <planning::PlanningPanel lab=lab />
             </ViewPanel>
             <ViewPanel view=View::Materials active=active>

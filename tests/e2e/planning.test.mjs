@@ -38,3 +38,31 @@ test("rejection chances for each test's rules: computed in slices, rising with t
     await context.close();
   }
 });
+
+test("the monthly QC review: each level's statistics, bias and SDI, and the rules broken, on screen and as a printed sheet", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await waitSaved(page);
+    await byTestId(page, "nav-charts").click();
+    const review = byTestId(page, "monthly-review");
+    assert.equal(await review.locator('[data-testid="review-month"]').inputValue(), "2026-11");
+    const rows = review.locator('[data-testid="table-qc-review"] tbody tr');
+    assert.equal(await rows.count(), 6, "one row per control level");
+    const glu = await rows.first().innerText();
+    assert.match(glu, /^GLU\t/);
+    assert.match(glu, /2-2s ×\d/);
+    // Another month: no results, no statistics.
+    await review.locator('[data-testid="review-month"]').fill("2026-10");
+    await review.locator('[data-testid="review-month"]').dispatchEvent("change");
+    await page.waitForFunction(() => /\t0\t\t\t/.test(document.querySelector('[data-testid="table-qc-review"] tbody tr').innerText));
+    await byTestId(page, "print-month-sheet").click();
+    await byTestId(page, "day-sheet").waitFor();
+    assert.equal(await byTestId(page, "sheet-part").count(), 1);
+    assert.match(await byTestId(page, "day-sheet").innerText(), /Monthly QC review — 2026-10/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
