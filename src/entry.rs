@@ -232,6 +232,10 @@ pub struct TestForm {
     pub model: String,
     pub wavelength_nm: String,
     pub linearity_limit: String,
+    /// Allowable total error, % (optional).
+    pub allowable_error_pct: String,
+    /// Bias from an external scheme, % (optional).
+    pub external_bias_pct: String,
 }
 
 /// One number or none; the caller checks the field's own range.
@@ -292,6 +296,14 @@ impl TestForm {
                 .check("linearity limit", l)
                 .map_err(|e| format!("{e} (or leave it empty)"))?;
         }
+        let allowable_error_pct = one_number(&self.allowable_error_pct, "allowable total error")?;
+        if let Some(v) = allowable_error_pct {
+            plausible::ALLOWABLE_ERROR_PCT.check("allowable total error", v)?;
+        }
+        let external_bias_pct = one_number(&self.external_bias_pct, "external bias")?;
+        if let Some(v) = external_bias_pct {
+            plausible::BIAS_PCT.check("external bias", v)?;
+        }
         Ok(crate::lab::TestSetup {
             meta,
             code,
@@ -308,6 +320,8 @@ impl TestForm {
             reference: Default::default(),
             critical: Default::default(),
             direction: Default::default(),
+            allowable_error_pct,
+            external_bias_pct,
         })
     }
 }
@@ -365,6 +379,7 @@ mod form_tests {
             model: "factor".into(),
             wavelength_nm: "505".into(),
             linearity_limit: "400".into(),
+            ..Default::default()
         }
     }
 

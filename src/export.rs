@@ -388,6 +388,20 @@ pub fn monthly_review<Tz: TimeZone>(
             row.extend(stats(now));
             row.push(fmt(bias, 2));
             row.push(fmt(sdi, 2));
+            // Sigma = (TEa − |bias|) / CV, with the external scheme's bias where given.
+            let used_bias = t.external_bias_pct.or(bias);
+            let sigma = match (t.allowable_error_pct, used_bias, now.and_then(|s| s.cv_pct)) {
+                (Some(tea), Some(b), Some(cv)) => crate::engine::planning::sigma(tea, b, cv).ok(),
+                _ => None,
+            };
+            row.push(
+                t.allowable_error_pct
+                    .map_or(String::new(), |v| v.to_string()),
+            );
+            row.push(fmt(sigma, 1));
+            row.push(sigma.map_or(String::new(), |s| {
+                crate::engine::planning::design_for(s).to_string()
+            }));
             row.push(tally(&warnings));
             row.push(tally(&rejections));
             row.extend(stats(find(&previous)));
@@ -420,6 +434,9 @@ pub fn monthly_review<Tz: TimeZone>(
             "cv_pct",
             "bias_pct",
             "sdi",
+            "tea_pct",
+            "sigma",
+            "qc_design",
             "warnings",
             "rejections",
             "previous_n",

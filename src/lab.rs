@@ -92,6 +92,12 @@ pub struct TestSetup {
     /// Which way the absorbance moves (fixed-time and kinetic tests).
     #[serde(default)]
     pub direction: Direction,
+    /// The quality the test needs: allowable total error, in percent (the lab's choice).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub allowable_error_pct: Option<f64>,
+    /// Bias from an external scheme, in percent (else the bias against the target).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub external_bias_pct: Option<f64>,
 }
 
 /// One calibrator's readings: assigned concentration and replicate absorbances.
@@ -240,6 +246,12 @@ impl TestSetup {
         plausible::WAVELENGTH_NM.check(&at("wavelength"), self.wavelength_nm)?;
         if let Some(l) = self.linearity_limit {
             plausible::SD.check(&at("linearity limit"), l)?;
+        }
+        if let Some(v) = self.allowable_error_pct {
+            plausible::ALLOWABLE_ERROR_PCT.check(&at("allowable total error"), v)?;
+        }
+        if let Some(v) = self.external_bias_pct {
+            plausible::BIAS_PCT.check(&at("external bias"), v)?;
         }
         for code in [&self.code, &self.unit] {
             if code.chars().count() > 40 {

@@ -63,6 +63,15 @@ print(json.dumps(out))
     // The demo's glucose shift is rejected by a systematic-error rule this month.
     let glu = review.rows.iter().find(|r| r[0] == "GLU").unwrap();
     assert!(glu[col("rejections")].contains("2-2s ×"), "{glu:?}");
+    // With an allowable total error of 10 %, sigma = (10 − |bias|) / CV of the month.
+    let mut with_goal = lab.clone();
+    with_goal.tests[0].allowable_error_pct = Some(10.0);
+    let r = export::monthly_review(&with_goal, y, m, &Utc).unwrap();
+    let row = &r.rows[0];
+    let num = |c: &str| row[col(c)].parse::<f64>().unwrap();
+    let want = (10.0 - num("bias_pct").abs()) / num("cv_pct");
+    assert!((num("sigma") - want).abs() < 0.06, "{row:?}");
+    assert!(!row[col("qc_design")].is_empty());
     // And a month with no runs has no statistics.
     let empty = export::monthly_review(&lab, y - 1, m, &Utc).unwrap();
     assert!(empty

@@ -60,6 +60,24 @@ pub fn sigma(tea_pct: f64, bias_pct: f64, cv_pct: f64) -> Result<f64, String> {
     Ok((tea_pct - bias_pct.abs()) / cv_pct)
 }
 
+/// What sigma-based QC design suggests for a test of this sigma metric, in our own
+/// words (common practice after the published sigma-based selection of rules and
+/// numbers of controls; the lab's QC policy decides).
+pub fn design_for(sigma: f64) -> &'static str {
+    if !sigma.is_finite() {
+        ""
+    } else if sigma >= 6.0 {
+        "1-3s with 2 controls per run is enough"
+    } else if sigma >= 5.0 {
+        "1-3s, 2-2s and R-4s with 2 controls per run"
+    } else if sigma >= 4.0 {
+        "1-3s, 2-2s, R-4s and 4-1s with 4 controls per run (or 2 per run over two runs)"
+    } else {
+        "the full multirule (with 8-x or 10-x), 4 or more controls per run and QC more \
+         often; reduce the method's imprecision or bias"
+    }
+}
+
 fn check(n_per_run: usize, error: Error) -> Result<(), String> {
     if !(1..=6).contains(&n_per_run) {
         return Err("n_per_run: give 1 to 6 control results per run".into());

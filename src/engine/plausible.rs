@@ -101,6 +101,10 @@ pub const STABILITY_HOURS: Range = Range::above(0.0, 87_600.0, "hours");
 pub const STABILITY_DAYS: Range = Range::above(0.0, 3_650.0, "days");
 /// A photometer's wavelength (ultraviolet to near infrared).
 pub const WAVELENGTH_NM: Range = Range::closed(200.0, 1_100.0, "nm");
+/// An allowable total error, in percent.
+pub const ALLOWABLE_ERROR_PCT: Range = Range::above(0.0, 100.0, "%");
+/// A bias, in percent.
+pub const BIAS_PCT: Range = Range::closed(-100.0, 100.0, "%");
 /// A temperature a bench check can read.
 pub const TEMPERATURE_C: Range = Range::closed(-90.0, 150.0, "°C");
 

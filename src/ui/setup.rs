@@ -345,6 +345,14 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
             .linearity_limit
             .map(|v| v.to_string())
             .unwrap_or_default(),
+        allowable_error_pct: test
+            .allowable_error_pct
+            .map(|v| v.to_string())
+            .unwrap_or_default(),
+        external_bias_pct: test
+            .external_bias_pct
+            .map(|v| v.to_string())
+            .unwrap_or_default(),
     });
     let (reason, set_reason) = signal(String::new());
     let (message, set_message) = signal(None::<String>);
@@ -367,6 +375,8 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
                 corrected.unit = parsed.unit;
                 corrected.wavelength_nm = parsed.wavelength_nm;
                 corrected.linearity_limit = parsed.linearity_limit;
+                corrected.allowable_error_pct = parsed.allowable_error_pct;
+                corrected.external_bias_pct = parsed.external_bias_pct;
                 let mut changed = lab.clone();
                 if let Some(t) = changed
                     .tests
@@ -391,6 +401,8 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
                     "name" => f.name.clone(),
                     "unit" => f.unit.clone(),
                     "wavelength" => f.wavelength_nm.clone(),
+                    "tea" => f.allowable_error_pct.clone(),
+                    "bias" => f.external_bias_pct.clone(),
                     _ => f.linearity_limit.clone(),
                 })
                 on:input=move |ev| {
@@ -399,6 +411,8 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
                         "name" => f.name = v,
                         "unit" => f.unit = v,
                         "wavelength" => f.wavelength_nm = v,
+                        "tea" => f.allowable_error_pct = v,
+                        "bias" => f.external_bias_pct = v,
                         _ => f.linearity_limit = v,
                     })
                 } />
@@ -410,6 +424,11 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
             <div class="form">
                 "name "{input("name")}" unit "{input("unit")}" nm "{input("wavelength")}
                 " linearity limit "{input("linearity")}<br/>
+                "allowable total error, % "{input("tea")}" external scheme bias, % "{input("bias")}
+                <p class="muted">"Allowable total error is the lab's choice. Figures often used \
+                    (from memory — verify against the current source before use): glucose 8 %, \
+                    creatinine 10 %, ALT 15 % (US CLIA acceptance limits as revised in 2024, \
+                    each with an absolute floor at low values)."</p>
                 {reason_line(set_reason, save, message)}
             </div>
         </details>

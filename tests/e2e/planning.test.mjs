@@ -45,6 +45,15 @@ test("the monthly QC review: each level's statistics, bias and SDI, and the rule
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
     await waitSaved(page);
+    // The lab sets glucose's quality goal: an allowable total error of 8 %.
+    await byTestId(page, "initials").fill("qr");
+    await byTestId(page, "initials").press("Enter");
+    const glucose = byTestId(page, "setup-test").first();
+    await glucose.locator('[data-testid="correct-test"]').click();
+    await glucose.locator('[data-testid="correct-test-tea"]').fill("8");
+    await glucose.locator('[data-testid="correction-reason"]').fill("quality goal set");
+    await glucose.locator('[data-testid="save-correction"]').click();
+    await waitSaved(page);
     await byTestId(page, "nav-charts").click();
     const review = byTestId(page, "monthly-review");
     assert.equal(await review.locator('[data-testid="review-month"]').inputValue(), "2026-11");
@@ -53,6 +62,8 @@ test("the monthly QC review: each level's statistics, bias and SDI, and the rule
     const glu = await rows.first().innerText();
     assert.match(glu, /^GLU\t/);
     assert.match(glu, /2-2s ×\d/);
+    // tea_pct, sigma and the QC design that sigma suggests.
+    assert.match(glu, /\t8\t-?\d+\.\d\t(1-3s|the full multirule)/);
     // Another month: no results, no statistics.
     await review.locator('[data-testid="review-month"]').fill("2026-10");
     await review.locator('[data-testid="review-month"]').dispatchEvent("change");
