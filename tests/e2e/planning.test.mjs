@@ -50,9 +50,10 @@ test("the monthly QC review: each level's statistics, bias and SDI, and the rule
     await byTestId(page, "initials").press("Enter");
     const glucose = byTestId(page, "setup-test").first();
     await glucose.locator('[data-testid="correct-test"]').click();
-    await glucose.locator('[data-testid="correct-test-tea"]').fill("8");
-    await glucose.locator('[data-testid="correction-reason"]').fill("quality goal set");
-    await glucose.locator('[data-testid="save-correction"]').click();
+    const form = glucose.locator('details:has([data-testid="correct-test-tea"])');
+    await form.locator('[data-testid="correct-test-tea"]').fill("8");
+    await form.locator('[data-testid="correction-reason"]').fill("quality goal set");
+    await form.locator('[data-testid="save-correction"]').click();
     await waitSaved(page);
     await byTestId(page, "nav-charts").click();
     const review = byTestId(page, "monthly-review");
