@@ -15,3 +15,4 @@ pub mod lab;
 pub mod mirror;
 pub mod store;
 pub mod ui;
+pub mod verification;

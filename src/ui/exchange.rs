@@ -19,6 +19,8 @@ use crate::store;
 pub enum Sheet {
     Day(NaiveDate),
     Month(i32, u32),
+    /// The calculation verification report, run at this time.
+    Verification(chrono::DateTime<Utc>),
 }
 
 /// The largest file an import reads, in bytes (a three-year backup is far smaller).
@@ -422,7 +424,12 @@ pub fn DaySheet(
     };
     move || {
         let which = sheet.get()?;
-        let l = lab.get()?;
+        let l = match (lab.get(), which) {
+            (Some(l), _) => l,
+            // The verification report needs no records.
+            (None, Sheet::Verification(_)) => Lab::empty("No lab set up yet"),
+            (None, _) => return None,
+        };
         let entries: Vec<Entry> = trail.shelf.get_value().borrow().entries_all();
         let (period, tables, who) = match which {
             Sheet::Day(day) => (
@@ -433,6 +440,17 @@ pub fn DaySheet(
             Sheet::Month(y, m) => (
                 format!("{y:04}-{m:02}"),
                 export::monthly_review(&l, y, m, &Local).map(|t| vec![t]),
+                None,
+            ),
+            Sheet::Verification(at) => (
+                format!(
+                    "Cuvette {}, run {}",
+                    crate::verification::VERSION,
+                    at.with_timezone(&Local).format("%Y-%m-%d %H:%M")
+                ),
+                Ok(vec![crate::verification::table(
+                    &crate::verification::run_all(),
+                )]),
                 None,
             ),
         };
@@ -728,6 +746,51 @@ pub fn ArchivePanel(
             </Show>
             <p class="muted">"An archive file opens read-only from the import above, with its charts and records."</p>
             {move || message.get().map(|m| view! { <p class="outcome" data-testid="archive-message">{m}</p> })}
+        </section>
+    }
+}
+
+/// The calculation verification report: reference cases run on this build's engine.
+#[component]
+pub fn VerificationPanel(
+    /// Where the printed sheet opens.
+    sheet: WriteSignal<Option<Sheet>>,
+) -> impl IntoView {
+    let (report, set_report) =
+        signal(None::<(chrono::DateTime<Utc>, Vec<crate::verification::Case>)>);
+    let run = move |_| set_report.set(Some((Utc::now(), crate::verification::run_all())));
+    view! {
+        <section class="card wide" data-testid="verification">
+            <h3>"Calculation verification"</h3>
+            <p class="muted">
+                "Runs published reference cases on this copy of Cuvette (NIST regression sets, \
+                 normal-table rejection probabilities, enzyme-factor arithmetic, rule sequences, \
+                 stability edge cases) and lists each with its source, the expected and the \
+                 obtained value. Print it and file it with the lab's software validation."
+            </p>
+            <p>
+                <button data-testid="verify-run" on:click=run>"Run the checks"</button>
+                " "
+                <button data-testid="verify-print" on:click=move |_| sheet.set(Some(Sheet::Verification(Utc::now())))>
+                    "Print the report"
+                </button>
+            </p>
+            {move || report.get().map(|(at, cases)| {
+                let failed = cases.iter().filter(|c| !c.pass).count();
+                view! {
+                    <p data-testid="verify-summary" class=if failed == 0 { "outcome" } else { "problem" }>
+                        {format!(
+                            "Cuvette {}, {}: {} of {} checks passed{}.",
+                            crate::verification::VERSION,
+                            at.with_timezone(&Local).format("%Y-%m-%d %H:%M"),
+                            cases.len() - failed,
+                            cases.len(),
+                            if failed == 0 { String::new() } else { format!("; {failed} FAILED — do not rely on this copy, report it") }
+                        )}
+                    </p>
+                    {table_view(crate::verification::table(&cases))}
+                }
+            })}
         </section>
     }
 }

@@ -612,6 +612,7 @@ fn Bench() -> impl IntoView {
             </ViewPanel>
             <ViewPanel view=View::Setup active=active>
                 <setup::SetupView lab=lab save=save technician=technician load_demo=load_demo />
+                <exchange::VerificationPanel sheet=set_sheet />
             </ViewPanel>
         </main>
     }

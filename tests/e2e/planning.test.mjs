@@ -78,3 +78,25 @@ test("the monthly QC review: each level's statistics, bias and SDI, and the rule
     await context.close();
   }
 });
+
+test("the calculation verification report runs the reference cases in the browser and prints", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "verify-run").click();
+    const summary = await byTestId(page, "verify-summary").innerText();
+    const m = /^Cuvette \d+\.\d+\.\d+, 2026-11-27 \d\d:\d\d: (\d+) of (\d+) checks passed\.$/.exec(summary);
+    assert.ok(m, summary);
+    assert.equal(m[1], m[2]);
+    assert.ok(Number(m[2]) >= 15);
+    const rows = await byTestId(page, "table-verification").locator("tbody tr").allInnerTexts();
+    assert.equal(rows.length, Number(m[2]));
+    assert.ok(rows.some((r) => /^NIST Misra1a.*\tpass$/s.test(r)));
+    assert.ok(rows.every((r) => r.endsWith("\tpass")));
+    await byTestId(page, "verify-print").click();
+    assert.match(await byTestId(page, "day-sheet").innerText(), /Calculation verification — Cuvette \d+\.\d+\.\d+, run 2026-11-27/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
