@@ -4,6 +4,7 @@
 //! command-line calculator); `lab` is the record data; `store` and `ui` are the thin
 //! browser shell.
 
+pub mod board;
 #[cfg(not(target_arch = "wasm32"))]
 pub mod calc;
 pub mod engine;

@@ -709,10 +709,37 @@ fn TodayBoard(
                         let _ = w.print();
                     }
                 };
+                let lots: Vec<String> = crate::board::crossovers(l, now, &Local)
+                    .into_iter()
+                    .map(|c| {
+                        let ends = c.old_runs_out.map_or(
+                            " (its end is not in the materials list: record the opened vial)".to_string(),
+                            |t| {
+                                format!(
+                                    " runs out {} ({})",
+                                    t.with_timezone(&Local).format("%Y-%m-%d %H:%M"),
+                                    stability::describe_left((t - now).num_minutes() as f64 / 60.0)
+                                )
+                            },
+                        );
+                        format!(
+                            "{} {}: new lot {} has {} accepted result(s) toward its own target, {} \
+                             still needed; old lot {}{ends}.",
+                            c.test, c.level, c.new_lot, c.new_results, c.still_needed, c.old_lot
+                        )
+                    })
+                    .collect();
+                let lots_view = (!lots.is_empty()).then(|| view! {
+                    <section class="card wide">
+                        <h3>"Control lots changing over"</h3>
+                        <ul>{lots.into_iter().map(|line| view! { <li data-testid="crossover-line">{line}</li> }).collect_view()}</ul>
+                    </section>
+                });
                 view! {
                     <p class="no-print">
                         <button data-testid="print-today" on:click=print>"Print today's sheet"</button>
                     </p>
+                    {lots_view}
                     <section class="card wide">
                         <h3>{format!("Tests — {}", today.format("%Y-%m-%d"))}</h3>
                         <p data-testid="today-temperature">{temperature}</p>

@@ -100,3 +100,29 @@ test("the calculation verification report runs the reference cases in the browse
     await context.close();
   }
 });
+
+test("a new control lot run beside the old one: the board counts its results toward its own target and says when the old lot runs out", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "initials").fill("lc");
+    await byTestId(page, "initials").press("Enter");
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await waitSaved(page);
+    await byTestId(page, "new-level-GLU").click();
+    const form = page.locator('details:has([data-testid="new-level-GLU"])');
+    await form.locator('[data-testid="level-name"]').fill("Normal");
+    await form.locator('[data-testid="level-lot"]').fill("DQ-N-2702");
+    await form.locator('[data-testid="level-mean"]').fill("96");
+    await form.locator('[data-testid="level-sd"]').fill("2,9");
+    await form.locator('[data-testid="add-level"]').click();
+    await waitSaved(page);
+    await byTestId(page, "nav-today").click();
+    const line = await byTestId(page, "crossover-line").innerText();
+    // The old lot's control vial (lot DQ-N-2611) is in the demo's materials list.
+    assert.match(line, /^GLU Normal: new lot DQ-N-2702 has 0 accepted result\(s\) toward its own target, 20 still needed; old lot DQ-N-2611 runs out 20\d\d-\d\d-\d\d \d\d:\d\d \(/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
