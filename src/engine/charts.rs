@@ -98,7 +98,7 @@ mod tests {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Trend {
     pub title: String,
-    /// (calibration number from 1, value).
+    /// (x, value): the calibration number from 1, or another x such as a shift in SD.
     pub points: Vec<(f64, f64)>,
     pub range: Option<(f64, f64)>,
     pub y_min: f64,
@@ -111,8 +111,21 @@ impl Trend {
         let points: Vec<(f64, f64)> = values
             .iter()
             .enumerate()
-            .filter(|(_, v)| v.is_finite())
             .map(|(i, &v)| ((i + 1) as f64, v))
+            .collect();
+        Trend::from_points(title, points, range)
+    }
+
+    /// A series of (x, y) points in increasing x (a power curve: probability against
+    /// the shift); `None` with fewer than two finite points.
+    pub fn from_points(
+        title: &str,
+        points: Vec<(f64, f64)>,
+        range: Option<(f64, f64)>,
+    ) -> Option<Trend> {
+        let points: Vec<(f64, f64)> = points
+            .into_iter()
+            .filter(|(x, y)| x.is_finite() && y.is_finite())
             .collect();
         if points.len() < 2 {
             return None;

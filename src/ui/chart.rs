@@ -125,12 +125,13 @@ fn draw_trend(el: web_sys::HtmlCanvasElement, s: &Trend) -> Result<(), String> {
     let backend = CanvasBackend::with_canvas_object(el).ok_or("no canvas context")?;
     let root = backend.into_drawing_area();
     root.fill(&WHITE).map_err(|e| e.to_string())?;
-    let n = s.points.len() as f64;
+    let x0 = s.points.first().map_or(1.0, |p| p.0) - 0.5;
+    let x1 = s.points.last().map_or(1.0, |p| p.0) + 0.5;
     let mut chart = ChartBuilder::on(&root)
         .margin(6)
         .x_label_area_size(20)
         .y_label_area_size(56)
-        .build_cartesian_2d(0.5..(n + 0.5), s.y_min..s.y_max)
+        .build_cartesian_2d(x0..x1, s.y_min..s.y_max)
         .map_err(|e| e.to_string())?;
     chart
         .configure_mesh()
@@ -144,7 +145,7 @@ fn draw_trend(el: web_sys::HtmlCanvasElement, s: &Trend) -> Result<(), String> {
         let limit = LIMIT_RED.stroke_width(1);
         for y in [lo, hi] {
             chart
-                .draw_series(LineSeries::new(vec![(0.5, y), (n + 0.5, y)], limit))
+                .draw_series(LineSeries::new(vec![(x0, y), (x1, y)], limit))
                 .map_err(|e| e.to_string())?;
         }
     }

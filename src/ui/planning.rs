@@ -133,6 +133,19 @@ fn TestPlanning(
                     </tbody>
                 </table>
             })}
+            {move || {
+                let r = rows.get();
+                (r.len() == SHIFTS.len())
+                    .then(|| {
+                        crate::engine::charts::Trend::from_points(
+                            "Chance of rejection against the systematic shift (SD)",
+                            r.iter().map(|(shift, p)| (*shift, p.p)).collect(),
+                            Some((0.0, 1.0)),
+                        )
+                    })
+                    .flatten()
+                    .map(|t| view! { <super::chart::TrendChart series=t /> })
+            }}
             {move || message.get().map(|m| view! { <p class="outcome" data-testid="plan-message">{m}</p> })}
         </div>
     }

@@ -27,6 +27,8 @@ test("rejection chances for each test's rules: computed in slices, rising with t
     for (let k = 1; k < p.length; k++) assert.ok(p[k] > p[k - 1], `rises with the shift: ${p}`);
     assert.ok(p[4] > 0.95, `a 4 SD shift is caught: ${p[4]}`);
     assert.equal(await glu.locator('[data-testid="plan-progress"]').count(), 0);
+    // The power curve: chance of rejection against the shift, drawn on a canvas.
+    await glu.locator('[data-testid="trend-chart"]').waitFor();
 
     const other = byTestId(page, "planning-CREA");
     await other.locator('[data-testid="plan-run-CREA"]').click();
