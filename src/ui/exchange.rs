@@ -384,7 +384,8 @@ fn table_view(t: export::Table) -> AnyView {
     }
     view! {
         <table data-testid=format!("table-{}", t.slug)>
-            <thead><tr>{t.headers.iter().map(|h| view! { <th>{*h}</th> }).collect_view()}</tr></thead>
+            // The CSV column names, read as words on screen and paper.
+            <thead><tr>{t.headers.iter().map(|h| view! { <th>{h.replace("_pct", " %").replace('_', " ")}</th> }).collect_view()}</tr></thead>
             <tbody>{t.rows.into_iter().map(|r| view! {
                 <tr>{r.into_iter().map(|c| view! { <td>{c}</td> }).collect_view()}</tr>
             }).collect_view()}</tbody>
@@ -697,6 +698,9 @@ pub fn ArchivePanel(
         leptos::task::spawn_local(async move {
             match store::shelf::replace(&cell, new).await {
                 Ok(()) => {
+                    // The lab first, then the message that says it is done.
+                    trail.refresh.run(());
+                    set_state.set(None);
                     set_message.set(Some(format!(
                         "{} records of {} were removed from this browser; {} keeps them. The \
                          trail says so.",
@@ -704,8 +708,6 @@ pub fn ArchivePanel(
                         a.file.year.unwrap_or_default(),
                         a.name
                     )));
-                    set_state.set(None);
-                    trail.refresh.run(());
                 }
                 Err(e) => set_message.set(Some(format!("{e}. Nothing was removed."))),
             }

@@ -14,6 +14,23 @@ const TRIALS: usize = 100_000;
 /// Runs simulated between two frames.
 const SLICE: usize = 2_000;
 const SHIFTS: [f64; 5] = [0.0, 1.0, 2.0, 3.0, 4.0];
+/// Random error as a multiple of the stable SD, with no shift.
+const RANDOM: [f64; 2] = [2.0, 3.0];
+
+/// Every error the card estimates: the shifts, then the larger random errors.
+fn errors() -> Vec<Error> {
+    SHIFTS
+        .iter()
+        .map(|&shift_sd| Error {
+            shift_sd,
+            random_factor: 1.0,
+        })
+        .chain(RANDOM.iter().map(|&random_factor| Error {
+            shift_sd: 0.0,
+            random_factor,
+        }))
+        .collect()
+}
 
 /// Let the page draw and answer before the next slice.
 async fn next_frame() {
@@ -35,7 +52,7 @@ fn TestPlanning(
     /// Control results per run (its levels).
     n_per_run: usize,
 ) -> impl IntoView {
-    let (rows, set_rows) = signal(Vec::<(f64, Probability)>::new());
+    let (rows, set_rows) = signal(Vec::<(Error, Probability)>::new());
     let (progress, set_progress) = signal(None::<f64>);
     let (message, set_message) = signal(None::<String>);
     let cancel = RwSignal::new(false);
@@ -56,11 +73,9 @@ fn TestPlanning(
             set_progress.set(Some(0.0));
             let rules = rules.clone();
             leptos::task::spawn_local(async move {
-                for (k, shift) in SHIFTS.iter().enumerate() {
-                    let error = Error {
-                        shift_sd: *shift,
-                        random_factor: 1.0,
-                    };
+                let all = errors();
+                for (k, &error) in all.iter().enumerate() {
+                    let shift = error.shift_sd;
                     let p = if let [single] = rules[..] {
                         match planning::rejection_probability(
                             &[single],
@@ -83,8 +98,9 @@ fn TestPlanning(
                                 if cancel.get_untracked() {
                                     set_progress.set(None);
                                     set_message.set(Some(format!(
-                                        "Cancelled after {} simulated runs at a shift of {shift} SD.",
-                                        k * TRIALS + sim.done
+                                        "Cancelled after {} simulated runs (at a shift of {shift} SD, random error × {}).",
+                                        k * TRIALS + sim.done,
+                                        error.random_factor
                                     )));
                                     return;
                                 }
@@ -93,14 +109,14 @@ fn TestPlanning(
                                     return set_message.set(Some(e));
                                 }
                                 set_progress.set(Some(
-                                    (k * TRIALS + sim.done) as f64 / (SHIFTS.len() * TRIALS) as f64,
+                                    (k * TRIALS + sim.done) as f64 / (all.len() * TRIALS) as f64,
                                 ));
                                 next_frame().await;
                             }
                             sim.result()
                         }
                     };
-                    set_rows.update(|r| r.push((*shift, p)));
+                    set_rows.update(|r| r.push((error, p)));
                 }
                 set_progress.set(None);
             });
@@ -121,11 +137,17 @@ fn TestPlanning(
             </p>
             {move || (!rows.get().is_empty()).then(|| view! {
                 <table class="stats" data-testid="plan-table">
-                    <thead><tr><th>"Systematic shift"</th><th>"Chance the run is rejected"</th><th>"±"</th></tr></thead>
+                    <thead><tr><th>"Error in the run"</th><th>"Chance the run is rejected"</th><th>"±"</th></tr></thead>
                     <tbody>
-                        {rows.get().into_iter().map(|(shift, p)| view! {
+                        {rows.get().into_iter().map(|(e, p)| view! {
                             <tr data-testid="plan-row">
-                                <td>{if shift == 0.0 { "none (false rejection)".to_string() } else { format!("{shift} SD") }}</td>
+                                <td>{if e.random_factor > 1.0 {
+                                    format!("random error × {} (SD {} times the stable SD)", e.random_factor, e.random_factor)
+                                } else if e.shift_sd == 0.0 {
+                                    "none (false rejection)".to_string()
+                                } else {
+                                    format!("systematic shift of {} SD", e.shift_sd)
+                                }}</td>
                                 <td>{format!("{:.3}", p.p)}</td>
                                 <td>{if p.std_error == 0.0 { "exact".to_string() } else { format!("{:.4}", p.std_error) }}</td>
                             </tr>
@@ -135,11 +157,14 @@ fn TestPlanning(
             })}
             {move || {
                 let r = rows.get();
-                (r.len() == SHIFTS.len())
+                (r.len() >= SHIFTS.len())
                     .then(|| {
                         crate::engine::charts::Trend::from_points(
                             "Chance of rejection against the systematic shift (SD)",
-                            r.iter().map(|(shift, p)| (*shift, p.p)).collect(),
+                            r.iter()
+                                .filter(|(e, _)| e.random_factor == 1.0)
+                                .map(|(e, p)| (e.shift_sd, p.p))
+                                .collect(),
                             Some((0.0, 1.0)),
                         )
                     })
@@ -181,8 +206,9 @@ pub fn PlanningPanel(
                     <h3>"How well the rules catch an error"</h3>
                     <p class="muted">
                         "The chance that a run is rejected by the test's rejecting rules, with no \
-                         error and with a shift of 1 to 4 SD, from 100 000 simulated runs per \
-                         shift through the same rule engine that judges the bench's runs (12 \
+                         error, with a shift of 1 to 4 SD, and with the random error doubled or \
+                         tripled, from 100 000 simulated runs per \
+                         case through the same rule engine that judges the bench's runs (12 \
                          runs in control before each). A planning aid: the lab's QC policy \
                          decides the rules."
                     </p>

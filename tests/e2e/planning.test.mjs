@@ -1,5 +1,5 @@
 // QC planning in the browser: each test's rejecting rules give the chance of rejecting a
-// good run and of catching a shift of 1–4 SD, from a Monte Carlo that runs in slices (the
+// good run and of catching a shift of 1–4 SD or a doubled or tripled random error, from a Monte Carlo that runs in slices (the
 // page answers meanwhile, a progress bar shows how far, and it can be cancelled).
 // Expected shape from the rule definitions: a small false-rejection chance that grows
 // with the shift; the demo's glucose uses the default rejecting rules 1-3s, 2-2s, R-4s,
@@ -21,11 +21,14 @@ test("rejection chances for each test's rules: computed in slices, rising with t
     await glu.locator('[data-testid="plan-progress"]').waitFor();
     // The page answers while it computes.
     assert.equal(await page.evaluate(() => 1 + 1), 2);
-    await page.waitForFunction(() => document.querySelectorAll('[data-testid="planning-GLU"] [data-testid="plan-row"]').length === 5, null, { timeout: 180000 });
+    await page.waitForFunction(() => document.querySelectorAll('[data-testid="planning-GLU"] [data-testid="plan-row"]').length === 7, null, { timeout: 240000 });
     const p = (await glu.locator('[data-testid="plan-row"] td:nth-child(2)').allInnerTexts()).map(Number);
     assert.ok(p[0] > 0.005 && p[0] < 0.05, `false rejection ${p[0]}`);
-    for (let k = 1; k < p.length; k++) assert.ok(p[k] > p[k - 1], `rises with the shift: ${p}`);
+    for (let k = 1; k < 5; k++) assert.ok(p[k] > p[k - 1], `rises with the shift: ${p}`);
     assert.ok(p[4] > 0.95, `a 4 SD shift is caught: ${p[4]}`);
+    // Random error doubled, then tripled: caught more often than no error, and more so.
+    assert.match(await glu.locator('[data-testid="plan-row"]').nth(5).innerText(), /^random error × 2/);
+    assert.ok(p[5] > p[0] && p[6] > p[5], `random error: ${p}`);
     assert.equal(await glu.locator('[data-testid="plan-progress"]').count(), 0);
     // The power curve: chance of rejection against the shift, drawn on a canvas.
     await glu.locator('[data-testid="trend-chart"]').waitFor();
