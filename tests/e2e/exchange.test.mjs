@@ -316,7 +316,8 @@ test("a year is archived: written, its copy checked, then removed; the archive r
     // Nothing is removed before the copy is checked; a different file is refused.
     assert.equal(await byTestId(page, "archive-remove").isDisabled(), true);
     await byTestId(page, "archive-verify").setInputFiles(demoBackup);
-    assert.match(await byTestId(page, "archive-message").innerText(), /not the archive just written.*Nothing was removed/);
+    // The copy is read asynchronously: wait for its verdict.
+    await page.waitForFunction(() => /not the archive just written.*Nothing was removed/.test(document.querySelector('[data-testid="archive-message"]').textContent));
     assert.equal(await byTestId(page, "archive-remove").isDisabled(), true);
     await byTestId(page, "archive-verify").setInputFiles(file.path);
     await page.waitForFunction(() => /complete, intact copy/.test(document.querySelector('[data-testid="archive-message"]').textContent));
