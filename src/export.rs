@@ -64,6 +64,14 @@ where
         .to_rfc3339_opts(SecondsFormat::Secs, true)
 }
 
+/// An enum's code as the records store it ("accepted-with-remarks", "reagent").
+fn word<T: serde::Serialize>(v: T) -> String {
+    serde_json::to_value(v)
+        .ok()
+        .and_then(|v| v.as_str().map(str::to_string))
+        .unwrap_or_default()
+}
+
 /// Which records a table takes, by their time.
 pub type Keep<'a> = &'a dyn Fn(DateTime<Utc>) -> bool;
 
@@ -138,10 +146,7 @@ where
                 continue;
             }
             let (value, what) = acceptance::sensitivity(&c.curve);
-            let verdict = serde_json::to_value(c.outcome)
-                .ok()
-                .and_then(|v| v.as_str().map(str::to_string))
-                .unwrap_or_default();
+            let verdict = word(c.outcome);
             rows.push(vec![
                 t.code.clone(),
                 time(c.performed_at, tz),
@@ -184,10 +189,7 @@ where
         .iter()
         .filter(|m| m.stability.opened_at.is_some_and(keep))
         .map(|m| {
-            let kind = serde_json::to_value(m.kind)
-                .ok()
-                .and_then(|v| v.as_str().map(str::to_string))
-                .unwrap_or_default();
+            let kind = word(m.kind);
             vec![
                 kind,
                 m.name.clone(),
@@ -253,11 +255,6 @@ pub fn patient_results<Tz: TimeZone>(lab: &Lab, keep: Keep, tz: &Tz) -> Table
 where
     Tz::Offset: std::fmt::Display,
 {
-    let word = |v: serde_json::Result<serde_json::Value>| {
-        v.ok()
-            .and_then(|v| v.as_str().map(str::to_string))
-            .unwrap_or_default()
-    };
     let rows = lab
         .patient_results
         .iter()
@@ -272,7 +269,7 @@ where
                 r.result.map_or(String::new(), |v| v.to_string()),
                 test.map_or(String::new(), |t| t.unit.clone()),
                 r.flag.map_or("", |f| f.letter()).to_string(),
-                word(serde_json::to_value(r.disposition)),
+                word(r.disposition),
                 if r.held { "held" } else { "not held" }.to_string(),
                 r.meta.by.clone(),
                 r.calibration_id.clone(),

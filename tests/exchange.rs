@@ -201,6 +201,17 @@ fn another_programs_json_and_hostile_text_are_refused() {
         let e = exchange::read(text, LARGEST).unwrap_err().0;
         assert!(e.contains(says), "{text} -> {e}");
     }
+    // Sealed properly but holding a value no lab records (a file made by another tool):
+    // refused by its ranges, naming the record.
+    let mut odd = demo();
+    odd.control_levels[0].sd = 1e308;
+    let entries = founding_entries(&odd, t0(), "X");
+    let text = exchange::to_text(&exchange::backup(&odd, &entries, t0(), "X"));
+    let e = exchange::read(&text, LARGEST).unwrap_err().0;
+    assert!(
+        e.starts_with("control level") && e.contains("holds a value no lab records"),
+        "{e}"
+    );
     let deep = "[".repeat(100_000) + &"]".repeat(100_000);
     assert!(exchange::read(&deep, LARGEST)
         .unwrap_err()

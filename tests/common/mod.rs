@@ -15,33 +15,15 @@ pub fn reference_dir() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/reference")
 }
 
-/// A NIST StRD data file: starting values, certified values and the data (read by
-/// the same parser the app's verification report uses).
-pub struct NistSet {
-    pub name: String,
-    pub starts: [Vec<f64>; 2],
-    pub certified: Vec<f64>,
-    pub certified_sd: Vec<f64>,
-    pub certified_rss: f64,
-    pub x: Vec<f64>,
-    pub y: Vec<f64>,
-}
+/// A NIST StRD data file, read by the same parser the app's verification report uses.
+pub use cuvette::verification::StrdSet as NistSet;
 
 /// Read a NIST StRD file (nonlinear "nls" or linear "lls" layout).
 pub fn nist(name: &str) -> NistSet {
     let path = reference_dir().join("nist").join(format!("{name}.dat"));
     let text = std::fs::read_to_string(&path)
         .unwrap_or_else(|e| panic!("cannot read {}: {e}", path.display()));
-    let s = cuvette::verification::parse_strd(&text).unwrap_or_else(|e| panic!("{name}: {e}"));
-    NistSet {
-        name: name.to_string(),
-        starts: s.starts,
-        certified: s.certified,
-        certified_sd: s.certified_sd,
-        certified_rss: s.certified_rss,
-        x: s.x,
-        y: s.y,
-    }
+    cuvette::verification::parse_strd(&text).unwrap_or_else(|e| panic!("{name}: {e}"))
 }
 
 #[allow(unused_imports)]
