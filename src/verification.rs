@@ -7,7 +7,8 @@
 //! solver (data files embedded as published), false-rejection probabilities of single
 //! rules against standard normal table values, the enzyme factor by worked arithmetic,
 //! multirule sequences built from the published rule definitions, and stability edge
-//! cases of the label convention. Plain Rust; the same cases run natively in the tests.
+//! cases of the label convention, and a published sigma-metric table (its rows that
+//! reproduce from their printed inputs). Plain Rust; the same cases run natively in the tests.
 
 use chrono::{DateTime, Utc};
 
@@ -126,6 +127,96 @@ const NORRIS: &str = include_str!("../tests/reference/nist/Norris.dat");
 const PONTIUS: &str = include_str!("../tests/reference/nist/Pontius.dat");
 const MISRA1A: &str = include_str!("../tests/reference/nist/Misra1a.dat");
 const NIST: &str = "NIST Statistical Reference Datasets (StRD), certified values";
+const SIGMA_TABLE: &str = include_str!("../tests/reference/sigma/biochem-med-2018-table2.csv");
+const SIGMA_SOURCE: &str = "Biochem Med 2018;28(2):020711, Table 2 (doi:10.11613/BM.2018.020711)";
+/// Rows of that table its printed inputs cannot give (see tests/reference/README.md).
+pub const SIGMA_ROWS_NOT_REPRODUCIBLE: [&str; 2] = ["Calcium", "Cholesterol"];
+
+/// One row of a published sigma-metric table.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SigmaRow {
+    pub analyte: String,
+    pub tea_pct: f64,
+    pub bias_pct: f64,
+    pub cv_pct: f64,
+    pub sigma: f64,
+}
+
+/// The published sigma table carried with the program (analyte, TEa source, TEa %,
+/// bias %, CV %, sigma).
+pub fn sigma_table() -> Result<Vec<SigmaRow>, String> {
+    SIGMA_TABLE
+        .lines()
+        .skip(1)
+        .filter(|l| !l.trim().is_empty())
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            let [analyte, _, tea, bias, cv, sigma] = f[..] else {
+                return Err(format!("sigma table row {l:?} does not have 6 fields"));
+            };
+            let num = |s: &str| s.trim().parse::<f64>().map_err(|e| format!("{l:?}: {e}"));
+            Ok(SigmaRow {
+                analyte: analyte.to_string(),
+                tea_pct: num(tea)?,
+                bias_pct: num(bias)?,
+                cv_pct: num(cv)?,
+                sigma: num(sigma)?,
+            })
+        })
+        .collect()
+}
+
+/// The range sigma takes over the rounding intervals of a row's printed inputs (TEa to
+/// 0.01, bias and CV to 0.1): sigma rises with TEa and falls with |bias| and CV.
+pub fn sigma_range(row: &SigmaRow) -> Result<(f64, f64), String> {
+    let b = row.bias_pct.abs();
+    let lo = planning::sigma(row.tea_pct - 0.005, b + 0.05, row.cv_pct + 0.05)?;
+    let hi = planning::sigma(row.tea_pct + 0.005, (b - 0.05).max(0.0), row.cv_pct - 0.05)?;
+    Ok((lo, hi))
+}
+
+fn sigma_case() -> Case {
+    let check = "sigma metric = (TEa − |bias|) / CV, published rows";
+    let rows = match sigma_table() {
+        Ok(r) => r,
+        Err(e) => return failed(check, SIGMA_SOURCE, String::new(), e),
+    };
+    let usable: Vec<&SigmaRow> = rows
+        .iter()
+        .filter(|r| !SIGMA_ROWS_NOT_REPRODUCIBLE.contains(&r.analyte.as_str()))
+        .collect();
+    let mut wrong = Vec::new();
+    for r in &usable {
+        match sigma_range(r) {
+            Ok((lo, hi)) if r.sigma >= lo - 0.05 && r.sigma <= hi + 0.05 => {}
+            Ok((lo, hi)) => wrong.push(format!("{} {lo:.2}–{hi:.2}", r.analyte)),
+            Err(e) => wrong.push(format!("{}: {e}", r.analyte)),
+        }
+    }
+    Case {
+        check: format!(
+            "{check} (all but {})",
+            SIGMA_ROWS_NOT_REPRODUCIBLE.join(", ")
+        ),
+        source: SIGMA_SOURCE,
+        expected: format!(
+            "{} of {} within the rounding of the printed inputs",
+            usable.len(),
+            usable.len()
+        ),
+        obtained: if wrong.is_empty() {
+            format!("{} of {}", usable.len(), usable.len())
+        } else {
+            format!(
+                "{} of {}; outside: {}",
+                usable.len() - wrong.len(),
+                usable.len(),
+                wrong.join("; ")
+            )
+        },
+        pass: wrong.is_empty() && usable.len() >= 17,
+    }
+}
 
 fn digits_case(check: &str, source: &'static str, got: &[f64], want: &[f64], need: f64) -> Case {
     let digits = got
@@ -345,6 +436,7 @@ pub fn run_all() -> Vec<Case> {
             0.0054,
         ),
     ];
+    out.push(sigma_case());
     let factor = readings::enzyme_factor(1.1, 0.1, 1.0, 6220.0);
     out.push(Case {
         check: "enzyme factor: 1.1 mL total, 0.1 mL sample, 1 cm, ε 6220".into(),

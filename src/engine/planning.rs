@@ -40,6 +40,111 @@ pub struct Probability {
     pub std_error: f64,
 }
 
+/// An allowable total error figure the lab may start from (it stays the lab's choice).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct AllowableErrorSuggestion {
+    pub analyte: &'static str,
+    pub tea_pct: f64,
+    /// Where the figure comes from, in words shown beside it.
+    pub source: &'static str,
+}
+
+const TABLE_CLIA: &str =
+    "US CLIA limit as printed in Biochem Med 2018;28(2):020711, Table 2 — verify against the current rule";
+const TABLE_BV: &str =
+    "biological variation, desirable, as printed in Biochem Med 2018;28(2):020711, Table 2";
+const FROM_MEMORY_CLIA_2024: &str =
+    "US CLIA acceptance limit as revised in 2024, from memory — verify (it has an absolute floor at low values)";
+
+/// Published allowable-error figures offered as editable suggestions, each with its source.
+pub const ALLOWABLE_ERROR_SUGGESTIONS: [AllowableErrorSuggestion; 17] = [
+    AllowableErrorSuggestion {
+        analyte: "Albumin",
+        tea_pct: 10.0,
+        source: TABLE_CLIA,
+    },
+    AllowableErrorSuggestion {
+        analyte: "ALP",
+        tea_pct: 30.0,
+        source: TABLE_CLIA,
+    },
+    AllowableErrorSuggestion {
+        analyte: "ALT",
+        tea_pct: 27.48,
+        source: TABLE_BV,
+    },
+    AllowableErrorSuggestion {
+        analyte: "ALT",
+        tea_pct: 15.0,
+        source: FROM_MEMORY_CLIA_2024,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Bilirubin, total",
+        tea_pct: 26.94,
+        source: TABLE_BV,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Cholesterol",
+        tea_pct: 9.01,
+        source: TABLE_BV,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Creatinine",
+        tea_pct: 8.87,
+        source: TABLE_BV,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Creatinine",
+        tea_pct: 10.0,
+        source: FROM_MEMORY_CLIA_2024,
+    },
+    AllowableErrorSuggestion {
+        analyte: "GGT",
+        tea_pct: 22.11,
+        source: TABLE_BV,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Glucose",
+        tea_pct: 10.0,
+        source: TABLE_CLIA,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Glucose",
+        tea_pct: 8.0,
+        source: FROM_MEMORY_CLIA_2024,
+    },
+    AllowableErrorSuggestion {
+        analyte: "LD",
+        tea_pct: 20.0,
+        source: TABLE_CLIA,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Potassium",
+        tea_pct: 5.61,
+        source: TABLE_BV,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Total protein",
+        tea_pct: 10.0,
+        source: TABLE_CLIA,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Triglycerides",
+        tea_pct: 25.99,
+        source: TABLE_BV,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Urea",
+        tea_pct: 15.55,
+        source: TABLE_BV,
+    },
+    AllowableErrorSuggestion {
+        analyte: "Uric acid",
+        tea_pct: 11.97,
+        source: TABLE_BV,
+    },
+];
+
 /// Sigma metric = (TEa − |bias|) / CV; every input in percent.
 pub fn sigma(tea_pct: f64, bias_pct: f64, cv_pct: f64) -> Result<f64, String> {
     for (name, v) in [

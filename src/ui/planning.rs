@@ -1,5 +1,6 @@
 //! How well each test's QC rules catch an error: the probability that a run is rejected
-//! with no error and with a systematic shift of 1–4 SD, for the test's rejection rules
+//! with no error, with a systematic shift of 1–4 SD and with the random error 1.5–3
+//! times the stable SD, drawn as two power curves, for the test's rejection rules
 //! and its number of control levels. The numbers are `engine::planning`'s; a Monte
 //! Carlo runs in slices between frames, with its progress and a cancel button.
 
@@ -15,7 +16,7 @@ const TRIALS: usize = 100_000;
 const SLICE: usize = 2_000;
 const SHIFTS: [f64; 5] = [0.0, 1.0, 2.0, 3.0, 4.0];
 /// Random error as a multiple of the stable SD, with no shift.
-const RANDOM: [f64; 2] = [2.0, 3.0];
+const RANDOM: [f64; 4] = [1.5, 2.0, 2.5, 3.0];
 
 /// Every error the card estimates: the shifts, then the larger random errors.
 fn errors() -> Vec<Error> {
@@ -171,6 +172,23 @@ fn TestPlanning(
                     .flatten()
                     .map(|t| view! { <super::chart::TrendChart series=t /> })
             }}
+            {move || {
+                let r = rows.get();
+                // The no-error row is the random-error curve's first point (× 1).
+                (r.len() > SHIFTS.len())
+                    .then(|| {
+                        crate::engine::charts::Trend::from_points(
+                            "Chance of rejection against the random error (SD × factor)",
+                            r.iter()
+                                .filter(|(e, _)| e.shift_sd == 0.0)
+                                .map(|(e, p)| (e.random_factor, p.p))
+                                .collect(),
+                            Some((0.0, 1.0)),
+                        )
+                    })
+                    .flatten()
+                    .map(|t| view! { <super::chart::TrendChart series=t /> })
+            }}
             {move || message.get().map(|m| view! { <p class="outcome" data-testid="plan-message">{m}</p> })}
         </div>
     }
@@ -206,8 +224,8 @@ pub fn PlanningPanel(
                     <h3>"How well the rules catch an error"</h3>
                     <p class="muted">
                         "The chance that a run is rejected by the test's rejecting rules, with no \
-                         error, with a shift of 1 to 4 SD, and with the random error doubled or \
-                         tripled, from 100 000 simulated runs per \
+                         error, with a shift of 1 to 4 SD, and with the random error 1.5 to 3 \
+                         times the stable SD, from 100 000 simulated runs per \
                          case through the same rule engine that judges the bench's runs (12 \
                          runs in control before each). A planning aid: the lab's QC policy \
                          decides the rules."

@@ -425,10 +425,30 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
                 "name "{input("name")}" unit "{input("unit")}" nm "{input("wavelength")}
                 " linearity limit "{input("linearity")}<br/>
                 "allowable total error, % "{input("tea")}" external scheme bias, % "{input("bias")}
-                <p class="muted">"Allowable total error is the lab's choice. Figures often used \
-                    (from memory — verify against the current source before use): glucose 8 %, \
-                    creatinine 10 %, ALT 15 % (US CLIA acceptance limits as revised in 2024, \
-                    each with an absolute floor at low values)."</p>
+                <br/><label>"start from a published figure "
+                    <select data-testid="correct-test-tea-suggestion" on:change=move |ev| {
+                        let pick = event_target_value(&ev);
+                        if let Some(s) = pick
+                            .parse::<usize>()
+                            .ok()
+                            .and_then(|i| crate::engine::planning::ALLOWABLE_ERROR_SUGGESTIONS.get(i))
+                        {
+                            set_form.update(|f| f.allowable_error_pct = s.tea_pct.to_string());
+                        }
+                    }>
+                        <option value="">"—"</option>
+                        {crate::engine::planning::ALLOWABLE_ERROR_SUGGESTIONS
+                            .iter()
+                            .enumerate()
+                            .map(|(i, s)| view! {
+                                <option value=i.to_string()>
+                                    {format!("{} {} % — {}", s.analyte, s.tea_pct, s.source)}
+                                </option>
+                            })
+                            .collect_view()}
+                    </select></label>
+                <p class="muted">"Allowable total error is the lab's choice: a suggestion only fills \
+                    the field, which stays editable. Check each figure against its current source."</p>
                 {reason_line(set_reason, save, message)}
             </div>
         </details>

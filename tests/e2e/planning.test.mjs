@@ -1,5 +1,5 @@
 // QC planning in the browser: each test's rejecting rules give the chance of rejecting a
-// good run and of catching a shift of 1–4 SD or a doubled or tripled random error, from a Monte Carlo that runs in slices (the
+// good run and of catching a shift of 1–4 SD or a random error 1.5–3 times the SD, from a Monte Carlo that runs in slices (the
 // page answers meanwhile, a progress bar shows how far, and it can be cancelled).
 // Expected shape from the rule definitions: a small false-rejection chance that grows
 // with the shift; the demo's glucose uses the default rejecting rules 1-3s, 2-2s, R-4s,
@@ -21,17 +21,21 @@ test("rejection chances for each test's rules: computed in slices, rising with t
     await glu.locator('[data-testid="plan-progress"]').waitFor();
     // The page answers while it computes.
     assert.equal(await page.evaluate(() => 1 + 1), 2);
-    await page.waitForFunction(() => document.querySelectorAll('[data-testid="planning-GLU"] [data-testid="plan-row"]').length === 7, null, { timeout: 240000 });
+    await page.waitForFunction(() => document.querySelectorAll('[data-testid="planning-GLU"] [data-testid="plan-row"]').length === 9, null, { timeout: 240000 });
     const p = (await glu.locator('[data-testid="plan-row"] td:nth-child(2)').allInnerTexts()).map(Number);
     assert.ok(p[0] > 0.005 && p[0] < 0.05, `false rejection ${p[0]}`);
     for (let k = 1; k < 5; k++) assert.ok(p[k] > p[k - 1], `rises with the shift: ${p}`);
     assert.ok(p[4] > 0.95, `a 4 SD shift is caught: ${p[4]}`);
-    // Random error doubled, then tripled: caught more often than no error, and more so.
-    assert.match(await glu.locator('[data-testid="plan-row"]').nth(5).innerText(), /^random error × 2/);
-    assert.ok(p[5] > p[0] && p[6] > p[5], `random error: ${p}`);
+    // Random error 1.5, 2, 2.5 and 3 times the SD: caught more often than no error, and
+    // more so as it grows.
+    assert.match(await glu.locator('[data-testid="plan-row"]').nth(5).innerText(), /^random error × 1.5/);
+    assert.match(await glu.locator('[data-testid="plan-row"]').nth(8).innerText(), /^random error × 3/);
+    assert.ok(p[5] > p[0], `random error: ${p}`);
+    for (let k = 6; k < 9; k++) assert.ok(p[k] > p[k - 1], `rises with the random error: ${p}`);
     assert.equal(await glu.locator('[data-testid="plan-progress"]').count(), 0);
-    // The power curve: chance of rejection against the shift, drawn on a canvas.
-    await glu.locator('[data-testid="trend-chart"]').waitFor();
+    // The power curves: chance of rejection against the shift and against the random
+    // error, each drawn on a canvas.
+    await page.waitForFunction(() => document.querySelectorAll('[data-testid="planning-GLU"] [data-testid="trend-chart"]').length === 2);
 
     const other = byTestId(page, "planning-CREA");
     await other.locator('[data-testid="plan-run-CREA"]').click();
@@ -56,6 +60,14 @@ test("the monthly QC review: each level's statistics, bias and SDI, and the rule
     const glucose = byTestId(page, "setup-test").first();
     await glucose.locator('[data-testid="correct-test"]').click();
     const form = glucose.locator('details:has([data-testid="correct-test-tea"])');
+    // A published figure fills the field (with its source beside it), which stays editable.
+    const pick = form.locator('[data-testid="correct-test-tea-suggestion"]');
+    const options = await pick.locator("option").allInnerTexts();
+    const glucoseTable = options.findIndex((o) => /^Glucose 10 % — US CLIA limit as printed in Biochem Med 2018/.test(o));
+    assert.ok(glucoseTable > 0, options.join("\n"));
+    assert.ok(options.some((o) => /^Glucose 8 % — .*from memory — verify/.test(o)));
+    await pick.selectOption({ index: glucoseTable });
+    await page.waitForFunction(() => document.querySelector('[data-testid="correct-test-tea"]').value === "10");
     await form.locator('[data-testid="correct-test-tea"]').fill("8");
     await form.locator('[data-testid="correction-reason"]').fill("quality goal set");
     await form.locator('[data-testid="save-correction"]').click();
@@ -97,6 +109,7 @@ test("the calculation verification report runs the reference cases in the browse
     const rows = await byTestId(page, "table-verification").locator("tbody tr").allInnerTexts();
     assert.equal(rows.length, Number(m[2]));
     assert.ok(rows.some((r) => /^NIST Misra1a.*\tpass$/s.test(r)));
+    assert.ok(rows.some((r) => /^sigma metric.*Biochem Med 2018;28\(2\):020711.*17 of 17.*\tpass$/s.test(r)));
     assert.ok(rows.every((r) => r.endsWith("\tpass")));
     await byTestId(page, "verify-print").click();
     assert.match(await byTestId(page, "day-sheet").innerText(), /Calculation verification — Cuvette \d+\.\d+\.\d+, run 2026-11-27/);
