@@ -1,7 +1,8 @@
 //! What today's board says about control lots: a new lot of a control level run in
 //! parallel with the old one (the same level name, another lot) needs its own target
-//! from at least 20 accepted results (`engine::qcstats`) before the old lot runs out.
-//! Plain Rust; the board shows the lines.
+//! from at least 20 accepted results (`engine::qcstats`) before the old lot runs out;
+//! and whether the PC's clock can be trusted for the countdowns. Plain Rust; the board
+//! shows the lines.
 
 use chrono::{DateTime, TimeZone, Utc};
 
@@ -86,6 +87,43 @@ pub fn crossovers<Tz: TimeZone>(lab: &Lab, now: DateTime<Utc>, tz: &Tz) -> Vec<C
     out
 }
 
+/// How far a record may lie ahead of the clock before the clock is doubted: records
+/// carried from a PC whose clock runs a little fast should not raise the alarm (our
+/// choice).
+pub const CLOCK_TOLERANCE: chrono::Duration = chrono::Duration::minutes(2);
+
+/// A gap between two sittings long enough to mention (the lab may simply have been
+/// closed; the technologist confirms the date).
+pub const CLOCK_GAP: chrono::Duration = chrono::Duration::hours(24);
+
+/// Why the PC's clock should be checked before a countdown is trusted.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ClockDoubt {
+    /// The clock reads earlier than a stored record: it was set back, or is wrong.
+    BehindRecords { newest: DateTime<Utc> },
+    /// The clock reads earlier than when this browser last ran Cuvette.
+    WentBack { last_seen: DateTime<Utc> },
+    /// More than a day since this browser last ran Cuvette.
+    Gap { last_seen: DateTime<Utc> },
+}
+
+/// Compare the clock with the newest stored record and with the time this browser last
+/// saw (the previous sitting); the most serious doubt first.
+pub fn clock_doubt(
+    now: DateTime<Utc>,
+    newest_record: Option<DateTime<Utc>>,
+    last_seen: Option<DateTime<Utc>>,
+) -> Option<ClockDoubt> {
+    if let Some(newest) = newest_record.filter(|t| *t > now + CLOCK_TOLERANCE) {
+        return Some(ClockDoubt::BehindRecords { newest });
+    }
+    match last_seen {
+        Some(t) if t > now + CLOCK_TOLERANCE => Some(ClockDoubt::WentBack { last_seen: t }),
+        Some(t) if now - t > CLOCK_GAP => Some(ClockDoubt::Gap { last_seen: t }),
+        _ => None,
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -113,6 +151,7 @@ mod tests {
                 run_at: at,
                 level_ids: vec![new.meta.id.clone()],
                 values: vec![Some(new.mean)],
+                after_action: None,
             });
         }
         let c = crossovers(&lab, now, &Utc);
@@ -132,5 +171,49 @@ mod tests {
             .map(|r| r.material.until)
             .min();
         assert_eq!(c[0].old_runs_out, want);
+    }
+
+    fn at(s: &str) -> DateTime<Utc> {
+        s.parse().unwrap()
+    }
+
+    #[test]
+    fn a_clock_behind_the_records_or_the_last_sitting_is_doubted() {
+        let now = at("2026-11-27T08:00:00Z");
+        assert_eq!(
+            clock_doubt(
+                now,
+                Some(at("2026-11-27T07:59:00Z")),
+                Some(at("2026-11-26T16:00:00Z"))
+            ),
+            None
+        );
+        // Within the tolerance: a record from a PC a minute fast.
+        assert_eq!(
+            clock_doubt(now, Some(at("2026-11-27T08:01:00Z")), None),
+            None
+        );
+        assert_eq!(
+            clock_doubt(now, Some(at("2026-11-28T08:00:00Z")), None),
+            Some(ClockDoubt::BehindRecords {
+                newest: at("2026-11-28T08:00:00Z")
+            })
+        );
+        assert_eq!(
+            clock_doubt(now, None, Some(at("2026-11-27T09:00:00Z"))),
+            Some(ClockDoubt::WentBack {
+                last_seen: at("2026-11-27T09:00:00Z")
+            })
+        );
+        assert_eq!(
+            clock_doubt(now, None, Some(at("2026-11-26T07:59:00Z"))),
+            Some(ClockDoubt::Gap {
+                last_seen: at("2026-11-26T07:59:00Z")
+            })
+        );
+        assert_eq!(
+            clock_doubt(now, None, Some(at("2026-11-26T08:01:00Z"))),
+            None
+        );
     }
 }

@@ -238,7 +238,7 @@ fn older_export(
     top: &serde_json::Map<String, serde_json::Value>,
     text: &str,
 ) -> Result<RecordsFile, Refused> {
-    const FIELDS: [&str; 11] = [
+    const FIELDS: [&str; 12] = [
         "schema_version",
         "lab_name",
         "demo",
@@ -249,6 +249,7 @@ fn older_export(
         "calibrations",
         "instrument_log",
         "patient_results",
+        "corrective_actions",
         "temperature_limits",
     ];
     let required = [
@@ -427,6 +428,7 @@ fn summarize(file: &RecordsFile, replayed: &Replay) -> Summary {
         (Kind::Calibration, lab.calibrations.len()),
         (Kind::InstrumentEntry, lab.instrument_log.len()),
         (Kind::PatientResult, lab.patient_results.len()),
+        (Kind::CorrectiveAction, lab.corrective_actions.len()),
     ] {
         records.insert(kind.words().to_string(), n);
     }
@@ -709,6 +711,7 @@ pub fn archivable<Tz: TimeZone>(
                     | Kind::Calibration
                     | Kind::InstrumentEntry
                     | Kind::PatientResult
+                    | Kind::CorrectiveAction
                     | Kind::Material
                     | Kind::Event
             );

@@ -249,6 +249,48 @@ where
     }
 }
 
+/// Corrective actions after rejected QC runs: test, the rejected run, when the action
+/// was taken, what was found, what was done, who.
+pub fn corrective_actions<Tz: TimeZone>(lab: &Lab, keep: Keep, tz: &Tz) -> Table
+where
+    Tz::Offset: std::fmt::Display,
+{
+    let rows = lab
+        .corrective_actions
+        .iter()
+        .filter(|a| keep(a.at))
+        .map(|a| {
+            let test = lab.tests.iter().find(|t| t.meta.id == a.test_id);
+            let run = lab.control_runs.iter().find(|r| r.meta.id == a.run_id);
+            vec![
+                test.map_or(String::new(), |t| t.code.clone()),
+                run.map_or(String::new(), |r| time(r.run_at, tz)),
+                time(a.at, tz),
+                a.found.clone(),
+                a.done.clone(),
+                a.meta.by.clone(),
+                a.run_id.clone(),
+                a.meta.id.clone(),
+            ]
+        })
+        .collect();
+    Table {
+        slug: "corrective-actions",
+        title: "Corrective actions",
+        headers: vec![
+            "test",
+            "rejected_run_at",
+            "at",
+            "found",
+            "done",
+            "by",
+            "run_id",
+            "record_id",
+        ],
+        rows,
+    }
+}
+
 /// Patient results as recorded at the bench: test, sample, when, signal, result and
 /// unit, flag, what to do, whether it was held (QC not accepted), who, the calibration.
 pub fn patient_results<Tz: TimeZone>(lab: &Lab, keep: Keep, tz: &Tz) -> Table
@@ -531,6 +573,7 @@ where
     let on_day = |t: DateTime<Utc>| t.with_timezone(tz).date_naive() == day;
     Ok(vec![
         qc_results(lab, &on_day, tz)?,
+        corrective_actions(lab, &on_day, tz),
         calibrations(lab, &on_day, tz),
         patient_results(lab, &on_day, tz),
         materials_opened(lab, &on_day, tz),

@@ -42,13 +42,14 @@ pub enum Kind {
     Calibration,
     InstrumentEntry,
     PatientResult,
+    CorrectiveAction,
     /// Something that happened to the records as a whole (an import, an archive),
     /// kept in the trail; it changes no record.
     Event,
 }
 
 impl Kind {
-    pub const ALL: [Kind; 9] = [
+    pub const ALL: [Kind; 10] = [
         Kind::Settings,
         Kind::Test,
         Kind::ControlLevel,
@@ -57,6 +58,7 @@ impl Kind {
         Kind::Calibration,
         Kind::InstrumentEntry,
         Kind::PatientResult,
+        Kind::CorrectiveAction,
         Kind::Event,
     ];
 
@@ -71,6 +73,7 @@ impl Kind {
             Kind::Calibration => "calibration",
             Kind::InstrumentEntry => "instrument log entry",
             Kind::PatientResult => "patient result",
+            Kind::CorrectiveAction => "corrective action",
             Kind::Event => "records event",
         }
     }
@@ -277,6 +280,14 @@ fn records_of(lab: &Lab) -> Vec<(Kind, &str, Option<&RecordMeta>, Value)> {
             body(r),
         )
     }));
+    out.extend(lab.corrective_actions.iter().map(|r| {
+        (
+            Kind::CorrectiveAction,
+            r.meta.id.as_str(),
+            Some(&r.meta),
+            body(r),
+        )
+    }));
     out
 }
 
@@ -339,6 +350,12 @@ pub fn changes(old: &Lab, new: &Lab) -> Vec<Change> {
         Kind::PatientResult,
         &old.patient_results,
         &new.patient_results,
+        &mut out,
+    );
+    diff_list(
+        Kind::CorrectiveAction,
+        &old.corrective_actions,
+        &new.corrective_actions,
         &mut out,
     );
     out
@@ -532,6 +549,7 @@ pub fn check_body(kind: Kind, body: &Value) -> Result<(), String> {
         Kind::Calibration => typed::<lab::CalibrationRecord>(body),
         Kind::InstrumentEntry => typed::<lab::InstrumentEntry>(body),
         Kind::PatientResult => typed::<lab::PatientResult>(body),
+        Kind::CorrectiveAction => typed::<lab::CorrectiveAction>(body),
         Kind::Event => serde_json::from_value::<Event>(body.clone())
             .map(|_| ())
             .map_err(|e| format!("the records event cannot be read ({e})")),
@@ -765,6 +783,7 @@ fn apply(
         Kind::Calibration => put(&mut lab.calibrations, e.action, &e.id, v, e.seq)?,
         Kind::InstrumentEntry => put(&mut lab.instrument_log, e.action, &e.id, v, e.seq)?,
         Kind::PatientResult => put(&mut lab.patient_results, e.action, &e.id, v, e.seq)?,
+        Kind::CorrectiveAction => put(&mut lab.corrective_actions, e.action, &e.id, v, e.seq)?,
         Kind::Event => {
             let v = v.unwrap_or(Value::Null);
             crate::engine::plausible::check_json(&v)

@@ -171,6 +171,25 @@ pub struct ControlRun {
     pub run_at: DateTime<Utc>,
     pub level_ids: Vec<String>,
     pub values: Vec<Option<f64>>,
+    /// The corrective action this run re-runs after (the test's run before it was
+    /// rejected).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub after_action: Option<String>,
+}
+
+/// What was found and done after a rejected QC run, before its re-run.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CorrectiveAction {
+    pub meta: RecordMeta,
+    pub test_id: String,
+    /// The rejected run it answers.
+    pub run_id: String,
+    /// When it was done.
+    pub at: DateTime<Utc>,
+    /// What was found (the cause, or what was checked).
+    pub found: String,
+    /// What was done about it.
+    pub done: String,
 }
 
 /// A reagent, calibrator or control material in use.
@@ -230,7 +249,8 @@ record!(
     MaterialRecord,
     CalibrationRecord,
     InstrumentEntry,
-    PatientResult
+    PatientResult,
+    CorrectiveAction
 );
 
 /// A record as JSON within the general bounds, then its own fields' ranges.
@@ -325,6 +345,25 @@ impl PatientResult {
             return Err(
                 "patient result: the sample id is empty or longer than 40 characters".into(),
             );
+        }
+        Ok(())
+    }
+}
+
+impl CorrectiveAction {
+    fn check_fields(&self) -> Result<(), String> {
+        for (what, text) in [
+            ("what was found", &self.found),
+            ("what was done", &self.done),
+        ] {
+            if text.trim().is_empty() {
+                return Err(format!("corrective action: say {what}"));
+            }
+            if text.chars().count() > 2000 {
+                return Err(format!(
+                    "corrective action: {what} is longer than 2000 characters"
+                ));
+            }
         }
         Ok(())
     }
@@ -495,6 +534,8 @@ pub struct Lab {
     pub instrument_log: Vec<InstrumentEntry>,
     #[serde(default)]
     pub patient_results: Vec<PatientResult>,
+    #[serde(default)]
+    pub corrective_actions: Vec<CorrectiveAction>,
     #[serde(default = "default_temperature_limits")]
     pub temperature_limits: Limits,
 }
@@ -513,6 +554,7 @@ impl Lab {
             calibrations: Vec::new(),
             instrument_log: Vec::new(),
             patient_results: Vec::new(),
+            corrective_actions: Vec::new(),
             temperature_limits: default_temperature_limits(),
         }
     }
@@ -558,6 +600,10 @@ impl Lab {
             &mut self.instrument_log,
             &incoming.instrument_log,
         ));
+        total.add(merge_records(
+            &mut self.corrective_actions,
+            &incoming.corrective_actions,
+        ));
         total
     }
 
@@ -589,6 +635,10 @@ impl Lab {
             meta(&mut e.meta);
             shift(&mut e.at);
         }
+        for a in &mut self.corrective_actions {
+            meta(&mut a.meta);
+            shift(&mut a.at);
+        }
     }
 
     /// Move the lab in time so that its newest recorded moment lies `lead` before
@@ -609,10 +659,12 @@ impl Lab {
             .chain(self.calibrations.iter().map(|c| &c.meta))
             .chain(self.materials.iter().map(|m| &m.meta))
             .chain(self.instrument_log.iter().map(|e| &e.meta))
+            .chain(self.corrective_actions.iter().map(|a| &a.meta))
             .flat_map(|m| [m.created_at, m.changed_at]);
         let events = (self.control_runs.iter().map(|r| r.run_at))
             .chain(self.calibrations.iter().map(|c| c.performed_at))
             .chain(self.instrument_log.iter().map(|e| e.at))
+            .chain(self.corrective_actions.iter().map(|a| a.at))
             .chain(
                 self.materials
                     .iter()
@@ -639,6 +691,7 @@ impl Lab {
         self.calibrations.retain(|r| r.meta.id != id);
         self.instrument_log.retain(|r| r.meta.id != id);
         self.patient_results.retain(|r| r.meta.id != id);
+        self.corrective_actions.retain(|r| r.meta.id != id);
     }
 
     /// Records holding values no lab would record (what a damaged store or file, or an
@@ -660,6 +713,7 @@ impl Lab {
         each(&self.calibrations, &mut out);
         each(&self.instrument_log, &mut out);
         each(&self.patient_results, &mut out);
+        each(&self.corrective_actions, &mut out);
         out
     }
     /// Control levels of a test, in the order they were set up.

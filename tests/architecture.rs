@@ -29,6 +29,9 @@ fn engine_imports_no_browser_crate_and_no_storage() {
     // The journal's logic and its localStorage layout are plain Rust too.
     files.push(src.join("journal.rs"));
     files.push(src.join("mirror.rs"));
+    // What the board and the runs view conclude from the records, likewise.
+    files.push(src.join("board.rs"));
+    files.push(src.join("corrective.rs"));
     let forbidden = [
         "leptos",
         "web_sys",

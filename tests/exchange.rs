@@ -237,6 +237,8 @@ fn a_lab_exported_by_the_older_cuvette_is_read_as_a_backup() {
             + l.materials.len()
             + l.calibrations.len()
             + l.instrument_log.len()
+            + l.patient_results.len()
+            + l.corrective_actions.len()
     });
 }
 

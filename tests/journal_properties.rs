@@ -89,6 +89,7 @@ proptest! {
                         run_at: at,
                         level_ids: levels,
                         values: vec![Some(*a).filter(|v| v.is_finite()), Some(*b)],
+                        after_action: None,
                     });
                 }
                 Step::CorrectTarget(i, m, sd) => {

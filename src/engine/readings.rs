@@ -407,6 +407,17 @@ pub fn flag(value: f64, reference: Limits, critical: Limits) -> Option<ResultFla
     }
 }
 
+/// An absorbance as the photometer shows it, to 4 decimals; a reading that rounds to
+/// zero is "0.0000", never "-0.0000" or "-0" (a water blank of −0.00004 is zero).
+pub fn absorbance_text(a: f64) -> String {
+    let s = format!("{a:.4}");
+    if s == "-0.0000" {
+        "0.0000".into()
+    } else {
+        s
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -512,5 +523,13 @@ mod tests {
             Some(ResultFlag::CriticalHigh)
         );
         assert_eq!(flag(90.0, reference, critical), None);
+    }
+
+    #[test]
+    fn an_absorbance_near_zero_is_shown_without_a_minus_sign() {
+        assert_eq!(absorbance_text(-0.0), "0.0000");
+        assert_eq!(absorbance_text(-0.00004), "0.0000");
+        assert_eq!(absorbance_text(-0.0004), "-0.0004");
+        assert_eq!(absorbance_text(0.5124), "0.5124");
     }
 }

@@ -18,6 +18,7 @@ pub const PREFIX: &str = "cuvette.";
 pub const ONE_KEY_LAB: &str = "cuvette.lab";
 const TECHNICIAN_KEY: &str = "cuvette.technician";
 const VIEW_KEY: &str = "cuvette.view";
+const CLOCK_KEY: &str = "cuvette.clock-last-seen";
 const BOOK_KEY: &str = "cuvette.book";
 const BOOT_KEY: &str = "cuvette.boot";
 const ASIDE_KEY: &str = "cuvette.aside";
@@ -234,6 +235,16 @@ pub fn view() -> Option<String> {
 
 pub fn set_view(view: &str) -> Result<(), StoreError> {
     set_raw(VIEW_KEY, view)
+}
+
+/// When this browser last ran Cuvette (the clock as it read then).
+pub fn clock_last_seen() -> Option<chrono::DateTime<chrono::Utc>> {
+    raw(CLOCK_KEY).and_then(|s| s.parse().ok())
+}
+
+/// Remember the clock as it reads now (a full storage only loses the remark).
+pub fn set_clock_last_seen(now: chrono::DateTime<chrono::Utc>) {
+    let _ = set_raw(CLOCK_KEY, &now.to_rfc3339());
 }
 
 fn raw(key: &str) -> Option<String> {

@@ -109,6 +109,7 @@ fn entry_row(e: &InstrumentEntry, limits: Limits) -> impl IntoView {
             };
             format!("{v} °C{side}")
         }
+        (Some(v), InstrumentEvent::PhotometerCheck) => crate::engine::readings::absorbance_text(v),
         (Some(v), _) => v.to_string(),
         (None, _) => String::new(),
     };

@@ -198,8 +198,15 @@ fn Bench() -> impl IntoView {
     let (technician, set_technician) = signal(store::technician());
     // Countdowns and "today" follow the clock without a reload.
     let (clock, set_clock) = signal(Utc::now());
+    // The previous sitting's clock, read before this one overwrites it.
+    let last_seen = store::clock_last_seen();
+    store::set_clock_last_seen(clock.get_untracked());
     set_interval(
-        move || set_clock.set(Utc::now()),
+        move || {
+            let now = Utc::now();
+            set_clock.set(now);
+            store::set_clock_last_seen(now);
+        },
         std::time::Duration::from_secs(30),
     );
     // An archive opened read-only is shown instead of the lab until it is closed.
@@ -585,7 +592,7 @@ fn Bench() -> impl IntoView {
         <main>
             <ViewPanel view=View::Today active=active>
                 <records::StorageWarning lab=lab clock=clock />
-                <TodayBoard lab=lab clock=clock />
+                <TodayBoard lab=lab clock=clock go=Callback::new(choose) last_seen=last_seen />
             </ViewPanel>
             <ViewPanel view=View::Calibration active=active>
                 <calibration::CalibrationView lab=lab save=save technician=technician />
@@ -656,6 +663,10 @@ fn TodayBoard(
     lab: ReadSignal<Option<Lab>>,
     /// The current time, ticking.
     clock: ReadSignal<chrono::DateTime<Utc>>,
+    /// Opens the view where a line is dealt with.
+    go: Callback<View>,
+    /// When this browser last ran Cuvette, before this sitting.
+    last_seen: Option<chrono::DateTime<Utc>>,
 ) -> impl IntoView {
     move || {
         let now = clock.get();
@@ -664,6 +675,27 @@ fn TodayBoard(
             Some(l) => {
                 let today = now.with_timezone(&Local).date_naive();
                 let tests = l.tests.iter().map(|t| today_row(l, t, today)).collect_view();
+                let local = |t: chrono::DateTime<Utc>| t.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string();
+                let clock_line = crate::board::clock_doubt(now, l.newest_time(), last_seen).map(|d| {
+                    let text = match d {
+                        crate::board::ClockDoubt::BehindRecords { newest } => format!(
+                            "Check the PC's clock: it reads {}, earlier than a stored record ({}). \
+                             Countdowns and today's QC depend on it: correct the clock before relying on them.",
+                            local(now), local(newest)
+                        ),
+                        crate::board::ClockDoubt::WentBack { last_seen } => format!(
+                            "Check the PC's clock: it reads {}, earlier than when Cuvette last ran here ({}). \
+                             Correct the clock before relying on a countdown.",
+                            local(now), local(last_seen)
+                        ),
+                        crate::board::ClockDoubt::Gap { last_seen } => format!(
+                            "Cuvette last ran here {}; the clock now reads {}. If the lab was closed, carry on; \
+                             otherwise correct the PC's clock before relying on a countdown.",
+                            local(last_seen), local(now)
+                        ),
+                    };
+                    view! { <p class="problem" role="alert" data-testid="clock-doubt">{text}</p> }
+                });
                 let attention: Vec<(String, String)> = l
                     .materials
                     .iter()
@@ -735,10 +767,33 @@ fn TodayBoard(
                         <ul>{lots.into_iter().map(|line| view! { <li data-testid="crossover-line">{line}</li> }).collect_view()}</ul>
                     </section>
                 });
+                let waiting = crate::corrective::awaiting_action(l);
+                let actions_view = (!waiting.is_empty()).then(|| {
+                    const SHOWN: usize = 10;
+                    let earlier = waiting.len().saturating_sub(SHOWN);
+                    view! {
+                        <section class="card wide decision-reject" data-testid="awaiting-actions">
+                            <h3>"Rejected QC runs without a corrective action"</h3>
+                            <ul>
+                                {waiting.into_iter().take(SHOWN).map(|w| {
+                                    let line = format!(
+                                        "{} — run of {} rejected ({}): record what was found and done, then re-run",
+                                        w.test_code,
+                                        w.run_at.with_timezone(&Local).format("%Y-%m-%d %H:%M"),
+                                        w.rules.join(", ")
+                                    );
+                                    view! { <li><button class="link" data-testid="awaiting-action" on:click=move |_| go.run(View::Runs)>{line}</button></li> }
+                                }).collect_view()}
+                            </ul>
+                            {(earlier > 0).then(|| view! { <p class="muted">{format!("and {earlier} earlier")}</p> })}
+                        </section>
+                    }
+                });
                 view! {
                     <p class="no-print">
                         <button data-testid="print-today" on:click=print>"Print today's sheet"</button>
                     </p>
+                    {clock_line}
                     {lots_view}
                     <section class="card wide">
                         <h3>{format!("Tests — {}", today.format("%Y-%m-%d"))}</h3>
@@ -748,6 +803,7 @@ fn TodayBoard(
                             <tbody>{tests}</tbody>
                         </table>
                     </section>
+                    {actions_view}
                     <section class="card wide">
                         <h3>"Materials that need attention"</h3>
                         <Show when=move || no_attention>

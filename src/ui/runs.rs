@@ -4,12 +4,13 @@
 use chrono::Local;
 use leptos::prelude::*;
 
+use crate::corrective::{self, RerunGate};
 use crate::engine::calibration::ReportableRange;
 use crate::engine::qc::{self, Decision, RunVerdict};
 use crate::engine::readings::{KineticPoint, KineticSettings};
 use crate::engine::results::{sample_result, Disposition, SampleReading, SampleResult};
 use crate::entry;
-use crate::lab::{ControlRun, Lab, ReadingMode, TestSetup};
+use crate::lab::{ControlRun, CorrectiveAction, Lab, ReadingMode, TestSetup};
 
 #[component]
 pub fn RunsView(
@@ -59,12 +60,13 @@ fn TestRuns(
             .rev()
             .map(|((run, values), verdict)| {
                 let shown = results_text(values, &history.targets);
+                let action = corrective_view(&lab, run, verdict.decision, save, technician);
                 view! {
                     <tr class=format!("decision-{}", verdict.decision.code()) data-testid="qc-run">
                         <td>{run.run_at.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()}</td>
                         <td>{run.meta.by.clone()}</td>
                         <td>{shown}</td>
-                        <td>{verdict_view(&verdict, &names, &run_dates)}</td>
+                        <td>{verdict_view(&verdict, &names, &run_dates)}{action}</td>
                         <td class="no-print">
                             <super::records::HistoryButton id=run.meta.id.clone() />
                             " "
@@ -93,6 +95,89 @@ fn TestRuns(
                 <tbody>{rows}</tbody>
             </table>
         </section>
+    }
+}
+
+/// Under a run's decision: the corrective action recorded for a rejected run, or the
+/// form to record it; and for a re-run, the action it follows.
+fn corrective_view(
+    lab: &Lab,
+    run: &ControlRun,
+    decision: Decision,
+    save: Callback<Lab>,
+    technician: ReadSignal<String>,
+) -> impl IntoView {
+    let when = |t: chrono::DateTime<chrono::Utc>| {
+        t.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()
+    };
+    let follows = run.after_action.as_ref().and_then(|id| {
+        lab.corrective_actions.iter().find(|a| &a.meta.id == id).map(|a| {
+            view! { <p class="muted" data-testid="rerun-after">{format!("re-run after the corrective action of {}", when(a.at))}</p> }
+        })
+    });
+    let answer = (decision == Decision::Reject).then(|| match corrective::action_for(lab, &run.meta.id) {
+        Some(a) => view! {
+            <p class="action-taken" data-testid="action-taken">
+                {format!("Corrective action ({}, {}): found: {} — done: {}", a.meta.by, when(a.at), a.found, a.done)}
+            </p>
+        }
+        .into_any(),
+        None => view! {
+            <ActionForm lab=lab.clone() test_id=run.test_id.clone() run_id=run.meta.id.clone() save=save technician=technician />
+        }
+        .into_any(),
+    });
+    (follows, answer)
+}
+
+/// Record what was found and what was done after a rejected run.
+#[component]
+fn ActionForm(
+    lab: Lab,
+    test_id: String,
+    run_id: String,
+    save: Callback<Lab>,
+    technician: ReadSignal<String>,
+) -> impl IntoView {
+    let (found, set_found) = signal(String::new());
+    let (done, set_done) = signal(String::new());
+    let (message, set_message) = signal(None::<String>);
+    let on_save = move |_| {
+        let (meta, now) = match super::new_record(technician) {
+            Ok(m) => m,
+            Err(e) => return set_message.set(Some(e)),
+        };
+        let action = CorrectiveAction {
+            meta,
+            test_id: test_id.clone(),
+            run_id: run_id.clone(),
+            at: now,
+            found: found.get_untracked().trim().to_string(),
+            done: done.get_untracked().trim().to_string(),
+        };
+        if let Err(e) = crate::lab::check_record(&action) {
+            return set_message.set(Some(e));
+        }
+        let mut changed = lab.clone();
+        changed.corrective_actions.push(action);
+        save.run(changed);
+    };
+    view! {
+        <details class="corrective" open>
+            <summary data-testid="action-open">"No corrective action recorded: record one before the re-run"</summary>
+            <div class="form">
+                <label>"What was found "<input size="30" data-testid="action-found"
+                    placeholder="cause, or what was checked"
+                    on:input=move |ev| set_found.set(event_target_value(&ev)) /></label>
+                " "
+                <label>"What was done "<input size="30" data-testid="action-done"
+                    placeholder="e.g. new reagent bottle, recalibrated"
+                    on:input=move |ev| set_done.set(event_target_value(&ev)) /></label>
+                " "
+                <button data-testid="save-action" on:click=on_save>"Save corrective action"</button>
+                {move || message.get().map(|m| view! { <p class="problem" data-testid="action-message">{m}</p> })}
+            </div>
+        </details>
     }
 }
 
@@ -167,6 +252,9 @@ fn NewRun(
     let targets = history.targets.clone();
     let past = history.values.clone();
     let (texts, set_texts) = signal(vec![String::new(); names.len()]);
+    // Held here, not only in the page: a redraw after any save starts the form closed
+    // and empty (a re-run after a corrective action is measured afresh).
+    let (open, set_open) = signal(false);
     let (message, set_message) = signal::<Option<String>>(None);
     let rules = test.qc_rules.clone();
     let names_for_preview = names.clone();
@@ -186,7 +274,12 @@ fn NewRun(
         }))
     });
     let test_id = test.meta.id.clone();
+    let gate = corrective::rerun_gate(&lab, &test.meta.id);
+    let blocked = gate.refusal();
     let on_save = move |_| {
+        if let Some(refused) = gate.refusal() {
+            return set_message.set(Some(refused));
+        }
         let (meta, now) = match super::new_record(technician) {
             Ok(m) => m,
             Err(e) => return set_message.set(Some(e)),
@@ -202,6 +295,10 @@ fn NewRun(
             run_at: now,
             level_ids: level_ids.clone(),
             values,
+            after_action: match &gate {
+                RerunGate::After { action_id } => Some(action_id.clone()),
+                _ => None,
+            },
         });
         save.run(changed);
         set_message.set(Some(format!(
@@ -220,9 +317,11 @@ fn NewRun(
     let code = test.code.clone();
     let unit = test.unit.clone();
     view! {
-        <details class="new-run">
+        <details class="new-run" prop:open=move || open.get()
+            on:toggle=move |ev| set_open.set(event_target::<web_sys::Element>(&ev).has_attribute("open"))>
             <summary data-testid=format!("new-run-{code}")>"New QC run"</summary>
             <div class="form">
+                {blocked.map(|b| view! { <p class="problem" data-testid="rerun-blocked">{format!("Not yet: {b}.")}</p> })}
                 {names_for_inputs
                     .into_iter()
                     .enumerate()
@@ -233,6 +332,7 @@ fn NewRun(
                                 <input
                                     size="8"
                                     data-testid=format!("run-value-{k}")
+                                    prop:value=move || texts.with(|t| t.get(k).cloned().unwrap_or_default())
                                     on:input=move |ev| set_texts.update(|t| t[k] = event_target_value(&ev))
                                 />
                                 " "

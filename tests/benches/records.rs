@@ -70,6 +70,7 @@ fn synthetic_lab(days: i64) -> Lab {
                 run_at: at,
                 level_ids: levels.iter().map(|l| l.meta.id.clone()).collect(),
                 values,
+                after_action: None,
             });
         }
     }

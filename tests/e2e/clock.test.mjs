@@ -5,7 +5,7 @@
 // glucose run, the thawed aliquot near its end) is the same at every hour.
 import { test } from "node:test";
 import assert from "node:assert/strict";
-import { openApp, newProfile, byTestId } from "./helpers.mjs";
+import { openApp, newProfile, byTestId, waitSaved } from "./helpers.mjs";
 
 const CASES = [
   // 00:30 local, UTC+14: the local date is a day ahead of UTC's.
@@ -34,6 +34,13 @@ for (const c of CASES) {
 
       await byTestId(page, "nav-runs").click();
       const card = byTestId(page, "runs-GLU");
+      // This morning's rejection gets its corrective action first.
+      const rejected = card.locator('[data-testid="qc-run"]').first();
+      await rejected.locator('[data-testid="action-found"]').fill("reagent lot changed without recalibration");
+      await rejected.locator('[data-testid="action-done"]').fill("recalibrated");
+      await rejected.locator('[data-testid="save-action"]').click();
+      await card.locator('[data-testid="qc-run"]').first().locator('[data-testid="action-taken"]').waitFor();
+    await waitSaved(page);
       const before = await card.locator('[data-testid="qc-run"]').count();
       await card.locator('[data-testid="new-run-GLU"]').click();
       await card.locator('[data-testid="run-value-0"]').fill("95");

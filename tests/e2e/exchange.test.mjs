@@ -81,9 +81,9 @@ test("the day's records of the demo's last day: one JSON that checks, and a CSV 
     const summary = JSON.parse(execFileSync(calc, ["check-backup"], { input: json.text }).toString());
     assert.match(summary.chain, /^intact/);
     assert.ok(summary.records["QC run"] >= 3, JSON.stringify(summary));
-    const csvs = await downloads(page, byTestId(page, "export-day-csv"), 6);
+    const csvs = await downloads(page, byTestId(page, "export-day-csv"), 7);
     const byName = Object.fromEntries(csvs.map((c) => [c.name.replace(/^cuvette-demo-district-hospital-lab-invented-data-|-2026-11-27\.csv$/g, ""), c.text]));
-    assert.deepEqual(Object.keys(byName).sort(), ["calibrations", "instrument-log", "materials", "patient-results", "qc-results", "trail"]);
+    assert.deepEqual(Object.keys(byName).sort(), ["calibrations", "corrective-actions", "instrument-log", "materials", "patient-results", "qc-results", "trail"]);
     const qc = byName["qc-results"].trim().split("\r\n");
     assert.equal(qc[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,by,record_id");
     assert.ok(qc.length > 1);
@@ -223,17 +223,17 @@ test("the printed day sheet: one page per section with the lab, the date, who wo
     await byTestId(page, "nav-records").click();
     await byTestId(page, "print-day-sheet").click();
     await byTestId(page, "day-sheet").waitFor();
-    assert.equal(await byTestId(page, "sheet-part").count(), 6);
+    assert.equal(await byTestId(page, "sheet-part").count(), 7);
     const pdf = join(mkdtempSync(join(tmpdir(), "sheet-")), "day.pdf");
     await page.pdf({ path: pdf, format: "A4" });
     const pages = Number(/Pages:\s+(\d+)/.exec(execFileSync("pdfinfo", [pdf]).toString())[1]);
-    assert.ok(pages >= 6, `${pages} pages`);
+    assert.ok(pages >= 7, `${pages} pages`);
     const text = execFileSync("pdftotext", ["-layout", pdf, "-"]).toString();
-    for (const want of ["Demo district hospital lab", "DEMO LAB", "2026-11-27", "QC results", "Calibrations", "Patient results", "Materials opened", "Instrument log", "Trail"]) {
+    for (const want of ["Demo district hospital lab", "DEMO LAB", "2026-11-27", "QC results", "Corrective actions", "Calibrations", "Patient results", "Materials opened", "Instrument log", "Trail"]) {
       assert.ok(text.includes(want), `the sheet lacks ${want}`);
     }
     assert.match(text, /Who worked: [A-Z]{2}/);
-    assert.equal(text.match(/Reviewed by \(name, signature\)/g).length, 6);
+    assert.equal(text.match(/Reviewed by \(name, signature\)/g).length, 7);
     // Only the sheet is printed: not the bench around it.
     assert.ok(!text.includes("Technician"), "the page header was printed");
     assert.ok(!text.includes("Carry the records to another PC"));

@@ -1,20 +1,33 @@
 // A new QC run: the decision is shown before saving, from the engine with the test's
-// history; saved with the technician's initials; a rejected run says to hold results.
+// history; saved with the technician's initials; a rejected run says to hold results
+// and asks for a corrective action before its re-run.
 import { test } from "node:test";
 import assert from "node:assert/strict";
-import { openApp, newProfile, byTestId } from "./helpers.mjs";
+import { openApp, newProfile, byTestId, waitSaved } from "./helpers.mjs";
 
-test("a new QC run is judged before it is saved", async () => {
+test("a rejected run asks for a corrective action before its re-run, which is judged before it is saved", async () => {
   const { context, page, problems } = await openApp(newProfile());
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
     await byTestId(page, "initials").fill("qa");
     await byTestId(page, "initials").press("Enter");
-    await byTestId(page, "nav-runs").click();
+    // The board leads to the one rejection without an action: glucose, this morning, 4-1s.
+    await byTestId(page, "nav-today").click();
+    const waiting = byTestId(page, "awaiting-action");
+    assert.equal(await waiting.count(), 1);
+    assert.match(await waiting.innerText(), /^GLU — run of 2026-11-27 \d\d:\d\d rejected \(4-1s\)/);
+    await waiting.click();
+    await byTestId(page, "view-runs").waitFor();
     const card = byTestId(page, "runs-GLU");
     const before = await card.locator('[data-testid="qc-run"]').count();
+    const newestRow = () => byTestId(page, "runs-GLU").locator('[data-testid="qc-run"]').first();
+    // The glucose 2-2s episode of the demo has its actions, and each re-run names one.
+    assert.ok((await card.locator('[data-testid="action-taken"]').count()) >= 2);
+    assert.ok((await card.locator('[data-testid="rerun-after"]').count()) >= 2);
+    assert.equal(await newestRow().locator('[data-testid="action-open"]').count(), 1);
     await card.locator('[data-testid="new-run-GLU"]').click();
+    assert.match(await card.locator('[data-testid="rerun-blocked"]').innerText(), /^Not yet: the test's last run was rejected/);
     // Normal level target 95 ± 2.8 mg/dL (demo): 105 is +3.6 SD → 1-3s.
     await card.locator('[data-testid="run-value-0"]').fill("105");
     await card.locator('[data-testid="run-value-1"]').fill("265,0");
@@ -25,14 +38,83 @@ test("a new QC run is judged before it is saved", async () => {
     await card.locator('[data-testid="run-value-0"]').fill("abc");
     assert.match(await card.innerText(), /Normal: "abc" is not a number/);
     await card.locator('[data-testid="run-value-0"]').fill("105");
+    // Refused: nothing recorded about the rejection yet; nothing typed is lost.
+    await card.locator('[data-testid="save-run"]').click();
+    assert.match(await card.locator('[data-testid="run-message"]').innerText(), /record what was found and what was done/);
+    assert.equal(await card.locator('[data-testid="qc-run"]').count(), before);
+    assert.equal(await card.locator('[data-testid="run-value-0"]').inputValue(), "105");
+    // The action needs both what was found and what was done.
+    const form = newestRow();
+    await form.locator('[data-testid="action-done"]').fill("new reagent bottle opened");
+    await form.locator('[data-testid="save-action"]').click();
+    assert.match(await form.locator('[data-testid="action-message"]').innerText(), /say what was found/);
+    await form.locator('[data-testid="action-found"]').fill("reagent bottle left uncapped overnight");
+    await form.locator('[data-testid="save-action"]').click();
+    await page.waitForFunction(() =>
+      /Corrective action \(QA, .*found: reagent bottle left uncapped overnight — done: new reagent bottle opened/.test(
+        document.querySelector('[data-testid="runs-GLU"] [data-testid="qc-run"]')?.innerText ?? ""));
+    await waitSaved(page);
+    assert.equal(await byTestId(page, "rerun-blocked").count(), 0);
+    // Now the re-run is saved, linked to the action, and judged.
+    await card.locator('[data-testid="new-run-GLU"]').click();
+    await card.locator('[data-testid="run-value-0"]').fill("105");
+    await card.locator('[data-testid="run-value-1"]').fill("265,0");
+    await card.locator(".run-preview").waitFor();
     await card.locator('[data-testid="save-run"]').click();
     await page.waitForFunction(
       (n) => document.querySelectorAll('[data-testid="runs-GLU"] [data-testid="qc-run"]').length === n,
       before + 1,
     );
-    const newest = byTestId(page, "runs-GLU").locator('[data-testid="qc-run"]').first();
+    const newest = newestRow();
     assert.match(await newest.innerText(), /QA/);
     assert.match(await newest.locator('[data-testid="qc-decision"]').innerText(), /^reject/);
+    assert.match(await newest.locator('[data-testid="rerun-after"]').innerText(), /^re-run after the corrective action of 2026-11-27/);
+    // Rejected again: it asks for its own action, and the board says so.
+    assert.equal(await newest.locator('[data-testid="action-open"]').count(), 1);
+    await byTestId(page, "nav-today").click();
+    assert.equal(await byTestId(page, "awaiting-action").count(), 1);
+    assert.match(await byTestId(page, "awaiting-action").innerText(), /^GLU — .*\(1-3s/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("an accepted re-run after the corrective action releases the patient results", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "initials").fill("qa");
+    await byTestId(page, "initials").press("Enter");
+    await byTestId(page, "nav-runs").click();
+    const card = byTestId(page, "runs-GLU");
+    const row = card.locator('[data-testid="qc-run"]').first();
+    await row.locator('[data-testid="action-found"]').fill("calibrator past its stability");
+    await row.locator('[data-testid="action-done"]').fill("recalibrated with a fresh calibrator vial");
+    await row.locator('[data-testid="save-action"]').click();
+    await card.locator('[data-testid="qc-run"]').first().locator('[data-testid="action-taken"]').waitFor();
+    await waitSaved(page);
+    const before = await card.locator('[data-testid="qc-run"]').count();
+    await card.locator('[data-testid="new-run-GLU"]').click();
+    await card.locator('[data-testid="run-value-0"]').fill("95");
+    await card.locator('[data-testid="run-value-1"]').fill("265");
+    await card.locator(".run-preview").waitFor();
+    assert.doesNotMatch(await card.locator(".run-preview").innerText(), /^reject/);
+    await card.locator('[data-testid="save-run"]').click();
+    await page.waitForFunction(
+      (n) => document.querySelectorAll('[data-testid="runs-GLU"] [data-testid="qc-run"]').length === n,
+      before + 1,
+    );
+    await card.locator('[data-testid="samples-GLU"]').click();
+    assert.doesNotMatch(await card.locator('[data-testid="qc-gate"]').innerText(), /rejected|No QC run/);
+    await card.locator('[data-testid="samples-blank"]').fill("0.050");
+    await card.locator('[data-testid="samples-lines"]').fill("S1 0.350");
+    const first = card.locator('[data-testid="sample-row"]').first();
+    await first.waitFor();
+    assert.doesNotMatch(await first.innerText(), /held/);
+    await byTestId(page, "nav-today").click();
+    assert.equal(await byTestId(page, "awaiting-action").count(), 0);
     assert.deepEqual(problems, []);
   } finally {
     await context.close();
