@@ -668,6 +668,8 @@ fn TodayBoard(
     /// When this browser last ran Cuvette, before this sitting.
     last_seen: Option<chrono::DateTime<Utc>>,
 ) -> impl IntoView {
+    // A long gap the technologist has confirmed (the lab was closed).
+    let (gap_confirmed, set_gap_confirmed) = signal(false);
     move || {
         let now = clock.get();
         lab.with(|l| match l {
@@ -676,7 +678,10 @@ fn TodayBoard(
                 let today = now.with_timezone(&Local).date_naive();
                 let tests = l.tests.iter().map(|t| today_row(l, t, today)).collect_view();
                 let local = |t: chrono::DateTime<Utc>| t.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string();
-                let clock_line = crate::board::clock_doubt(now, l.newest_time(), last_seen).map(|d| {
+                let clock_line = crate::board::clock_doubt(now, l.newest_time(), last_seen)
+                    .filter(|d| !(matches!(d, crate::board::ClockDoubt::Gap { .. }) && gap_confirmed.get()))
+                    .map(|d| {
+                    let gap = matches!(d, crate::board::ClockDoubt::Gap { .. });
                     let text = match d {
                         crate::board::ClockDoubt::BehindRecords { newest } => format!(
                             "Check the PC's clock: it reads {}, earlier than a stored record ({}). \
@@ -694,7 +699,12 @@ fn TodayBoard(
                             local(last_seen), local(now)
                         ),
                     };
-                    view! { <p class="problem" role="alert" data-testid="clock-doubt">{text}</p> }
+                    view! {
+                        <p class="problem" role="alert" data-testid="clock-doubt">
+                            {text}
+                            {gap.then(|| view! { " " <button data-testid="clock-right" on:click=move |_| set_gap_confirmed.set(true)>"The date is right"</button> })}
+                        </p>
+                    }
                 });
                 let attention: Vec<(String, String)> = l
                     .materials

@@ -62,3 +62,42 @@ for (const c of CASES) {
     }
   });
 }
+
+// The countdowns trust the PC's clock, so the board says when it is in doubt: a day or
+// more since the last sitting (confirmed with one click), and a clock set back behind
+// the stored records. Same profile, three sittings on fixed clocks (UTC+3).
+test("the board doubts a clock that jumped a weekend or went back behind the records", async () => {
+  const profile = newProfile();
+  let { context, page, problems } = await openApp(profile, undefined, { now: "2026-11-27T09:30:00Z" });
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await waitSaved(page);
+    await byTestId(page, "nav-today").click();
+    assert.equal(await byTestId(page, "clock-doubt").count(), 0, "no doubt on a steady clock");
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+  ({ context, page, problems } = await openApp(profile, undefined, { now: "2026-11-30T05:00:00Z" }));
+  try {
+    await byTestId(page, "nav-today").click();
+    const doubt = byTestId(page, "clock-doubt");
+    assert.match(await doubt.innerText(), /^Cuvette last ran here 2026-11-27 12:3\d; the clock now reads 2026-11-30 08:00\. If the lab was closed, carry on/);
+    await byTestId(page, "clock-right").click();
+    assert.equal(await byTestId(page, "clock-doubt").count(), 0);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+  ({ context, page, problems } = await openApp(profile, undefined, { now: "2026-11-26T09:00:00Z" }));
+  try {
+    await byTestId(page, "nav-today").click();
+    const doubt = byTestId(page, "clock-doubt");
+    assert.match(await doubt.innerText(), /^Check the PC's clock: it reads 2026-11-26 12:00, earlier than a stored record \(2026-11-27 12:2\d\)/);
+    assert.equal(await byTestId(page, "clock-right").count(), 0, "a clock behind the records cannot be waved away");
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});

@@ -29,3 +29,25 @@ test("a reaction temperature outside the limits is recorded and flagged", async 
     await context.close();
   }
 });
+
+test("a photometer reading near zero is shown to 4 decimals, never as -0", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "initials").fill("pn");
+    await byTestId(page, "initials").press("Enter");
+    await byTestId(page, "nav-instrument").click();
+    // The demo's water blanks include a reading stored as −0.
+    const rows = await byTestId(page, "instrument-row").allInnerTexts();
+    assert.ok(rows.some((r) => /photometer check \(absorbance\)\t0\.0000\t/.test(r)), rows.join("\n"));
+    assert.ok(rows.every((r) => !/\t-0(\.0+)?\t/.test(r)), rows.join("\n"));
+    await byTestId(page, "instrument-event").selectOption("photometer-check");
+    await byTestId(page, "instrument-value").fill("-0,0004");
+    await byTestId(page, "add-instrument-entry").click();
+    await page.waitForFunction(() => /-0\.0004/.test(document.querySelector('[data-testid="instrument-row"]').innerText));
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
