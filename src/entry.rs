@@ -236,6 +236,28 @@ pub struct TestForm {
     pub allowable_error_pct: String,
     /// Bias from an external scheme, % (optional).
     pub external_bias_pct: String,
+    /// Days a calibration stays valid (optional).
+    pub calibration_valid_days: String,
+    /// QC runs a day (optional; once a day when empty).
+    pub qc_runs_per_day: String,
+}
+
+/// A whole number in a range, or none.
+fn whole_number(
+    text: &str,
+    what: &str,
+    range: crate::engine::plausible::Range,
+) -> Result<Option<u32>, String> {
+    match one_number(text, what)? {
+        None => Ok(None),
+        Some(v) => {
+            range.check(what, v)?;
+            if v.fract() != 0.0 {
+                return Err(format!("{what}: a whole number, e.g. 7"));
+            }
+            Ok(Some(v as u32))
+        }
+    }
 }
 
 /// One number or none; the caller checks the field's own range.
@@ -304,6 +326,16 @@ impl TestForm {
         if let Some(v) = external_bias_pct {
             plausible::BIAS_PCT.check("external bias", v)?;
         }
+        let calibration_valid_days = whole_number(
+            &self.calibration_valid_days,
+            "calibration valid for",
+            plausible::CALIBRATION_VALID_DAYS,
+        )?;
+        let qc_runs_per_day = whole_number(
+            &self.qc_runs_per_day,
+            "QC runs a day",
+            plausible::QC_RUNS_PER_DAY,
+        )?;
         Ok(crate::lab::TestSetup {
             meta,
             code,
@@ -322,6 +354,8 @@ impl TestForm {
             direction: Default::default(),
             allowable_error_pct,
             external_bias_pct,
+            calibration_valid_days,
+            qc_runs_per_day,
         })
     }
 }

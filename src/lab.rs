@@ -98,6 +98,14 @@ pub struct TestSetup {
     /// Bias from an external scheme, in percent (else the bias against the target).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub external_bias_pct: Option<f64>,
+    /// Days a calibration stays valid (the maker's instructions or the lab's policy);
+    /// none: no limit set.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub calibration_valid_days: Option<u32>,
+    /// QC runs the lab's schedule asks for each day (1: daily; 2: each of two shifts);
+    /// none: once a day.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub qc_runs_per_day: Option<u32>,
 }
 
 /// One calibrator's readings: assigned concentration and replicate absorbances.
@@ -272,6 +280,12 @@ impl TestSetup {
         }
         if let Some(v) = self.external_bias_pct {
             plausible::BIAS_PCT.check(&at("external bias"), v)?;
+        }
+        if let Some(d) = self.calibration_valid_days {
+            plausible::CALIBRATION_VALID_DAYS.check(&at("calibration valid for"), d as f64)?;
+        }
+        if let Some(n) = self.qc_runs_per_day {
+            plausible::QC_RUNS_PER_DAY.check(&at("QC runs a day"), n as f64)?;
         }
         for code in [&self.code, &self.unit] {
             if code.chars().count() > 40 {

@@ -32,6 +32,7 @@ fn engine_imports_no_browser_crate_and_no_storage() {
     // What the board and the runs view conclude from the records, likewise.
     files.push(src.join("board.rs"));
     files.push(src.join("corrective.rs"));
+    files.push(src.join("due.rs"));
     let forbidden = [
         "leptos",
         "web_sys",

@@ -105,6 +105,10 @@ pub const WAVELENGTH_NM: Range = Range::closed(200.0, 1_100.0, "nm");
 pub const ALLOWABLE_ERROR_PCT: Range = Range::above(0.0, 100.0, "%");
 /// A bias, in percent.
 pub const BIAS_PCT: Range = Range::closed(-100.0, 100.0, "%");
+/// How long a calibration stays valid, in days (up to ten years).
+pub const CALIBRATION_VALID_DAYS: Range = Range::closed(1.0, 3_650.0, "days");
+/// QC runs a day's schedule asks for (one an hour at most).
+pub const QC_RUNS_PER_DAY: Range = Range::closed(1.0, 24.0, "runs");
 /// A temperature a bench check can read.
 pub const TEMPERATURE_C: Range = Range::closed(-90.0, 150.0, "°C");
 

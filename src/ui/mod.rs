@@ -777,6 +777,27 @@ fn TodayBoard(
                         <ul>{lots.into_iter().map(|line| view! { <li data-testid="crossover-line">{line}</li> }).collect_view()}</ul>
                     </section>
                 });
+                let due_lines = crate::due::today(l, now, &Local);
+                let due_view = (!due_lines.is_empty()).then(|| view! {
+                    <section class="card wide" data-testid="due-today">
+                        <h3>"What is due today"</h3>
+                        <ul class="due">
+                            {due_lines.into_iter().map(|d| {
+                                let (task, place) = match d.task {
+                                    crate::due::Task::Qc => ("QC", View::Runs),
+                                    crate::due::Task::Calibration => ("calibration", View::Calibration),
+                                };
+                                let text = format!("{} {task}: {} — {}", d.test, d.state.code(), d.why);
+                                view! {
+                                    <li class=format!("due-{}", d.state.code())>
+                                        <button class="link" data-testid="due-line" data-state=d.state.code()
+                                            on:click=move |_| go.run(place)>{text}</button>
+                                    </li>
+                                }
+                            }).collect_view()}
+                        </ul>
+                    </section>
+                });
                 let waiting = crate::corrective::awaiting_action(l);
                 let actions_view = (!waiting.is_empty()).then(|| {
                     const SHOWN: usize = 10;
@@ -813,6 +834,7 @@ fn TodayBoard(
                             <tbody>{tests}</tbody>
                         </table>
                     </section>
+                    {due_view}
                     {actions_view}
                     <section class="card wide">
                         <h3>"Materials that need attention"</h3>

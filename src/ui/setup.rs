@@ -353,6 +353,14 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
             .external_bias_pct
             .map(|v| v.to_string())
             .unwrap_or_default(),
+        calibration_valid_days: test
+            .calibration_valid_days
+            .map(|v| v.to_string())
+            .unwrap_or_default(),
+        qc_runs_per_day: test
+            .qc_runs_per_day
+            .map(|v| v.to_string())
+            .unwrap_or_default(),
     });
     let (reason, set_reason) = signal(String::new());
     let (message, set_message) = signal(None::<String>);
@@ -377,6 +385,8 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
                 corrected.linearity_limit = parsed.linearity_limit;
                 corrected.allowable_error_pct = parsed.allowable_error_pct;
                 corrected.external_bias_pct = parsed.external_bias_pct;
+                corrected.calibration_valid_days = parsed.calibration_valid_days;
+                corrected.qc_runs_per_day = parsed.qc_runs_per_day;
                 let mut changed = lab.clone();
                 if let Some(t) = changed
                     .tests
@@ -403,6 +413,8 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
                     "wavelength" => f.wavelength_nm.clone(),
                     "tea" => f.allowable_error_pct.clone(),
                     "bias" => f.external_bias_pct.clone(),
+                    "valid-days" => f.calibration_valid_days.clone(),
+                    "qc-per-day" => f.qc_runs_per_day.clone(),
                     _ => f.linearity_limit.clone(),
                 })
                 on:input=move |ev| {
@@ -413,6 +425,8 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
                         "wavelength" => f.wavelength_nm = v,
                         "tea" => f.allowable_error_pct = v,
                         "bias" => f.external_bias_pct = v,
+                        "valid-days" => f.calibration_valid_days = v,
+                        "qc-per-day" => f.qc_runs_per_day = v,
                         _ => f.linearity_limit = v,
                     })
                 } />
@@ -424,7 +438,10 @@ fn CorrectTest(test: crate::lab::TestSetup) -> impl IntoView {
             <div class="form">
                 "name "{input("name")}" unit "{input("unit")}" nm "{input("wavelength")}
                 " linearity limit "{input("linearity")}<br/>
-                "allowable total error, % "{input("tea")}" external scheme bias, % "{input("bias")}
+                "allowable total error, % "{input("tea")}" external scheme bias, % "{input("bias")}<br/>
+                "a calibration is valid for (days) "{input("valid-days")}
+                " QC runs a day "{input("qc-per-day")}
+                <span class="muted">" (from the maker's instructions and the lab's QC policy; empty: no limit, once a day)"</span>
                 <br/><label>"start from a published figure "
                     <select data-testid="correct-test-tea-suggestion" on:change=move |ev| {
                         let pick = event_target_value(&ev);

@@ -1,0 +1,56 @@
+// What is due this morning: the demo's board lists, per test, its QC and its
+// calibration as the records imply (the latest glucose run rejected by 4-1s, which also
+// asks for a look at the calibration; creatinine and ALT done), each line leading to
+// where it is dealt with; a calibration whose validity is shortened in Set-up becomes
+// overdue. Fixed clock: 2026-11-27 12:30 in Nairobi (UTC+3).
+import { test } from "node:test";
+import assert from "node:assert/strict";
+import { openApp, newProfile, byTestId, waitSaved } from "./helpers.mjs";
+
+test("the demo's board says what is due this morning and why, and a calibration past its validity is overdue", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await waitSaved(page);
+    await byTestId(page, "nav-today").click();
+    const lines = () => byTestId(page, "due-line").allInnerTexts();
+    const got = await lines();
+    assert.equal(got.length, 6, got.join("\n"));
+    assert.match(got[0], /^GLU QC: due — 0 of 1 today; the latest was rejected: corrective action, then re-run$/);
+    assert.match(got[1], /^GLU calibration: triggered — QC of 2026-11-27 \d\d:\d\d rejected by 4-1s \(a systematic error\) after the calibration of 2026-11-23/);
+    assert.match(got[2], /^CREA QC: done — 1 of 1 not rejected today/);
+    assert.match(got[3], /^CREA calibration: done — calibrated 2026-11-23 \d\d:\d\d, valid until 2026-11-30/);
+    assert.match(got[4], /^ALT QC: done/);
+    assert.match(got[5], /^ALT calibration: done — calibrated 2026-11-02 \d\d:\d\d, valid until 2026-12-02/);
+    const states = await byTestId(page, "due-line").evaluateAll((els) => els.map((e) => e.dataset.state));
+    assert.deepEqual(states, ["due", "triggered", "done", "done", "done", "done"]);
+    // A line leads to its view.
+    await byTestId(page, "due-line").nth(1).click();
+    await byTestId(page, "view-calibration").waitFor({ state: "visible" });
+    await byTestId(page, "nav-today").click();
+    await byTestId(page, "due-line").first().click();
+    await byTestId(page, "view-runs").waitFor({ state: "visible" });
+    // The lab's policy: creatinine's calibration is valid 3 days. The one of 23 November
+    // ran out on the 26th.
+    await byTestId(page, "initials").fill("dl");
+    await byTestId(page, "initials").press("Enter");
+    await byTestId(page, "nav-setup").click();
+    const crea = byTestId(page, "setup-test").nth(1);
+    await crea.locator('[data-testid="correct-test"]').click();
+    const form = crea.locator('details:has([data-testid="correct-test-valid-days"])');
+    await form.locator('[data-testid="correct-test-valid-days"]').fill("2.5");
+    await form.locator('[data-testid="correction-reason"]').fill("validity from the reagent insert");
+    await form.locator('[data-testid="save-correction"]').click();
+    assert.match(await form.locator('[data-testid="correction-message"]').innerText(), /calibration valid for: a whole number/);
+    await form.locator('[data-testid="correct-test-valid-days"]').fill("3");
+    await form.locator('[data-testid="save-correction"]').click();
+    await waitSaved(page);
+    await byTestId(page, "nav-today").click();
+    await page.waitForFunction(() => document.querySelectorAll('[data-testid="due-line"]')[3]?.dataset.state === "overdue");
+    assert.match((await lines())[3], /^CREA calibration: overdue — calibrated 2026-11-23 \d\d:\d\d, valid 3 days: expired 2026-11-26 \d\d:\d\d; recalibrate$/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
