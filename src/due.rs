@@ -177,9 +177,11 @@ where
     }
     // A rejection since the calibration by a rule that looks for a systematic error.
     if let Some(verdicts) = verdicts {
+        // The newest such rejection.
         let systematic = runs
             .iter()
             .zip(verdicts)
+            .rev()
             .filter(|(r, v)| r.run_at > made && v.decision == Decision::Reject)
             .filter_map(|(r, v)| {
                 let rules: Vec<&str> = v
@@ -188,9 +190,9 @@ where
                     .filter(|x| x.action == Action::Reject && x.rule.detects_systematic_error())
                     .map(|x| x.rule.code())
                     .collect();
-                (!rules.is_empty()).then(|| (r.run_at, rules))
+                (!rules.is_empty()).then_some((r.run_at, rules))
             })
-            .last();
+            .next();
         if let Some((at, mut rules)) = systematic {
             rules.dedup();
             return line(
