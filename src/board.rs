@@ -152,6 +152,8 @@ mod tests {
                 level_ids: vec![new.meta.id.clone()],
                 values: vec![Some(new.mean)],
                 after_action: None,
+                materials_used: Vec::new(),
+                acknowledged: Vec::new(),
             });
         }
         let c = crossovers(&lab, now, &Utc);

@@ -128,6 +128,8 @@ mod tests {
             level_ids: levels.iter().map(|l| l.meta.id.clone()).collect(),
             values: levels.iter().map(|l| Some(l.mean + z * l.sd)).collect(),
             after_action: None,
+            materials_used: Vec::new(),
+            acknowledged: Vec::new(),
         }
     }
 

@@ -133,6 +133,12 @@ pub struct CalibrationRecord {
     pub outcome: Outcome,
     /// The verdict's reasons, as shown when it was saved.
     pub findings: Vec<String>,
+    /// The materials used (ids in the materials list).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub materials_used: Vec<String>,
+    /// Warnings about those materials the technologist acknowledged before saving.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub acknowledged: Vec<String>,
 }
 
 impl CalibrationRecord {
@@ -183,6 +189,12 @@ pub struct ControlRun {
     /// rejected).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub after_action: Option<String>,
+    /// The materials used (ids in the materials list).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub materials_used: Vec<String>,
+    /// Warnings about those materials the technologist acknowledged before saving.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub acknowledged: Vec<String>,
 }
 
 /// What was found and done after a rejected QC run, before its re-run.

@@ -18,4 +18,5 @@ pub mod lab;
 pub mod mirror;
 pub mod store;
 pub mod ui;
+pub mod usage;
 pub mod verification;

@@ -33,6 +33,7 @@ fn engine_imports_no_browser_crate_and_no_storage() {
     files.push(src.join("board.rs"));
     files.push(src.join("corrective.rs"));
     files.push(src.join("due.rs"));
+    files.push(src.join("usage.rs"));
     let forbidden = [
         "leptos",
         "web_sys",

@@ -90,6 +90,8 @@ proptest! {
                         level_ids: levels,
                         values: vec![Some(*a).filter(|v| v.is_finite()), Some(*b)],
                         after_action: None,
+                        materials_used: Vec::new(),
+                        acknowledged: Vec::new(),
                     });
                 }
                 Step::CorrectTarget(i, m, sd) => {

@@ -83,7 +83,13 @@ fn TestCalibration(
                     <td>{top}</td>
                     <td>{format!("{what} {value:.4}")}</td>
                     <td>{change}</td>
-                    <td class=outcome_class(c.outcome)>{outcome_words(c.outcome)}</td>
+                    <td class=outcome_class(c.outcome)>{outcome_words(c.outcome)}
+                        {(!c.acknowledged.is_empty()).then(|| view! {
+                            <p class="problem" data-testid="calibration-acknowledged">
+                                {format!("Used although warned (acknowledged by {}): {}", c.meta.by, c.acknowledged.join("; "))}
+                            </p>
+                        })}
+                    </td>
                     <td class="no-print">
                         <super::records::HistoryButton id=c.meta.id.clone() />" "
                         <super::records::VoidButton id=c.meta.id.clone() />
@@ -213,6 +219,10 @@ fn NewCalibration(
         ))
     });
     let test_id = test.meta.id.clone();
+    let chosen = RwSignal::new(Vec::<String>::new());
+    let acknowledged = RwSignal::new(false);
+    let test_for_check = test.clone();
+    let lab_for_materials = lab.clone();
     let on_save = move |_| {
         let (meta, now) = match super::new_record(technician) {
             Ok(m) => m,
@@ -230,6 +240,15 @@ fn NewCalibration(
             ));
             return;
         };
+        let used = chosen.get_untracked();
+        let warned = crate::usage::warnings(&lab, &used, &test_for_check, now, &chrono::Local);
+        if !warned.is_empty() && !acknowledged.get_untracked() {
+            return set_message.set(Some(
+                "a material chosen is past its stability: read the warning and tick the box, \
+                 or choose another material"
+                    .into(),
+            ));
+        }
         let record = CalibrationRecord {
             meta,
             test_id: test_id.clone(),
@@ -247,6 +266,8 @@ fn NewCalibration(
             curve: fit.curve,
             outcome: verdict.outcome,
             findings: verdict.findings.iter().map(|f| f.message.clone()).collect(),
+            materials_used: used,
+            acknowledged: warned,
         };
         let mut changed = lab.clone();
         changed.calibrations.push(record);
@@ -308,6 +329,9 @@ fn NewCalibration(
                         on:input=move |ev| set_cal_text.set(event_target_value(&ev))></textarea>
                 </label>
                 {shown}
+                <super::materials::MaterialsUsed lab=lab_for_materials test=test.clone()
+                    kinds=vec![crate::lab::MaterialKind::Calibrator, crate::lab::MaterialKind::Reagent]
+                    chosen=chosen acknowledged=acknowledged />
                 <button data-testid="save-calibration" on:click=on_save>"Save calibration"</button>
                 {move || message.get().map(|m| view! { <p class="outcome" data-testid="calibration-message">{m}</p> })}
             </div>

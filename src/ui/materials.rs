@@ -181,3 +181,72 @@ fn NewMaterial(
         </details>
     }
 }
+
+/// The materials an entry uses (of the given kinds), with the warnings for any past its
+/// stability — for the material or for the test's analyte in it — and the box that
+/// acknowledges them. The form that holds it checks again when it saves
+/// (`crate::usage::warnings`) and keeps what was acknowledged on the entry.
+#[component]
+pub(super) fn MaterialsUsed(
+    lab: Lab,
+    test: crate::lab::TestSetup,
+    kinds: Vec<crate::lab::MaterialKind>,
+    chosen: RwSignal<Vec<String>>,
+    acknowledged: RwSignal<bool>,
+) -> impl IntoView {
+    let offered: Vec<(String, String)> = lab
+        .materials
+        .iter()
+        .filter(|m| kinds.contains(&m.kind))
+        .map(|m| (m.meta.id.clone(), format!("{} lot {}", m.name, m.lot)))
+        .collect();
+    if offered.is_empty() {
+        return ().into_any();
+    }
+    let warnings = Memo::new(move |_| {
+        let ids = chosen.get();
+        crate::usage::warnings(&lab, &ids, &test, Utc::now(), &Local)
+    });
+    view! {
+        <fieldset class="materials-used" data-testid="materials-used">
+            <legend>"Materials used"</legend>
+            {offered.into_iter().map(|(id, text)| {
+                let for_check = id.clone();
+                view! {
+                    <label>
+                        <input type="checkbox" data-testid="material-used"
+                            prop:checked=move || chosen.with(|c| c.contains(&for_check))
+                            on:change=move |ev| {
+                                let on = event_target_checked(&ev);
+                                let id = id.clone();
+                                chosen.update(|c| {
+                                    c.retain(|x| *x != id);
+                                    if on {
+                                        c.push(id);
+                                    }
+                                });
+                                acknowledged.set(false);
+                            } />
+                        " "{text}
+                    </label>
+                    " "
+                }
+            }).collect_view()}
+            {move || {
+                let w = warnings.get();
+                (!w.is_empty()).then(|| view! {
+                    <div class="problem" data-testid="material-warnings" role="alert">
+                        <ul>{w.into_iter().map(|line| view! { <li>{line}</li> }).collect_view()}</ul>
+                        <label>
+                            <input type="checkbox" data-testid="acknowledge-materials"
+                                prop:checked=move || acknowledged.get()
+                                on:change=move |ev| acknowledged.set(event_target_checked(&ev)) />
+                            " I have read this and use them anyway (kept on this entry, with my initials)"
+                        </label>
+                    </div>
+                })
+            }}
+        </fieldset>
+    }
+    .into_any()
+}

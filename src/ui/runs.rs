@@ -127,7 +127,14 @@ fn corrective_view(
         }
         .into_any(),
     });
-    (follows, answer)
+    let acknowledged = (!run.acknowledged.is_empty()).then(|| {
+        view! {
+            <p class="problem" data-testid="run-acknowledged">
+                {format!("Used although warned (acknowledged by {}): {}", run.meta.by, run.acknowledged.join("; "))}
+            </p>
+        }
+    });
+    (follows, answer, acknowledged)
 }
 
 /// Record what was found and what was done after a rejected run.
@@ -246,6 +253,7 @@ fn NewRun(
     technician: ReadSignal<String>,
 ) -> impl IntoView {
     let snapshot = lab.clone();
+    let lab_for_materials = lab.clone();
     let history = snapshot.control_history(&test.meta.id);
     let names: Vec<String> = history.levels.iter().map(|l| l.name.clone()).collect();
     let level_ids: Vec<String> = history.levels.iter().map(|l| l.meta.id.clone()).collect();
@@ -274,6 +282,9 @@ fn NewRun(
         }))
     });
     let test_id = test.meta.id.clone();
+    let chosen = RwSignal::new(Vec::<String>::new());
+    let acknowledged = RwSignal::new(false);
+    let test_for_check = test.clone();
     let gate = corrective::rerun_gate(&lab, &test.meta.id);
     let blocked = gate.refusal();
     let on_save = move |_| {
@@ -288,6 +299,15 @@ fn NewRun(
             set_message.set(Some("enter at least one control result first".into()));
             return;
         };
+        let used = chosen.get_untracked();
+        let warned = crate::usage::warnings(&lab, &used, &test_for_check, now, &Local);
+        if !warned.is_empty() && !acknowledged.get_untracked() {
+            return set_message.set(Some(
+                "a material chosen is past its stability: read the warning and tick the box, \
+                 or choose another material"
+                    .into(),
+            ));
+        }
         let mut changed = lab.clone();
         changed.control_runs.push(ControlRun {
             meta,
@@ -299,6 +319,8 @@ fn NewRun(
                 RerunGate::After { action_id } => Some(action_id.clone()),
                 _ => None,
             },
+            materials_used: used,
+            acknowledged: warned,
         });
         save.run(changed);
         set_message.set(Some(format!(
@@ -350,6 +372,9 @@ fn NewRun(
                     }
                     .into_any(),
                 })}
+                <super::materials::MaterialsUsed lab=lab_for_materials test=test.clone()
+                    kinds=vec![crate::lab::MaterialKind::Control, crate::lab::MaterialKind::Reagent]
+                    chosen=chosen acknowledged=acknowledged />
                 <button data-testid="save-run" on:click=on_save>"Save run"</button>
                 {move || message.get().map(|m| view! { <p class="outcome" data-testid="run-message">{m}</p> })}
             </div>

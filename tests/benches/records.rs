@@ -71,6 +71,8 @@ fn synthetic_lab(days: i64) -> Lab {
                 level_ids: levels.iter().map(|l| l.meta.id.clone()).collect(),
                 values,
                 after_action: None,
+                materials_used: Vec::new(),
+                acknowledged: Vec::new(),
             });
         }
     }

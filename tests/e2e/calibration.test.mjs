@@ -52,3 +52,50 @@ test("a new glucose calibration is fitted, judged, saved and kept", async () => 
     await context.close();
   }
 });
+
+// The demo's thawed calibrator aliquot has about an hour left after thawing. Two hours
+// later (same records, the clock moved on) it is past that: a calibration made with it
+// warns, is refused until acknowledged, and keeps the acknowledgement on its row.
+test("a calibration with a calibrator past its stability is refused until acknowledged", async () => {
+  const profile = newProfile();
+  let { context, page, problems } = await openApp(profile, undefined, { now: "2026-11-27T09:30:00Z" });
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await waitSaved(page);
+  } finally {
+    await context.close();
+  }
+  ({ context, page, problems } = await openApp(profile, undefined, { now: "2026-11-27T11:30:00Z" }));
+  try {
+    await byTestId(page, "initials").fill("ct");
+    await byTestId(page, "initials").press("Enter");
+    await byTestId(page, "nav-calibration").click();
+    const card = byTestId(page, "calibration-GLU");
+    const before = await card.locator('[data-testid="calibration-row"]').count();
+    await card.locator('[data-testid="new-calibration-GLU"]').click();
+    await card.locator('[data-testid="calibration-blank"]').fill("0.052 0.053");
+    await card.locator('[data-testid="calibration-readings"]').fill("100: 0.470 0.474");
+    assert.match(await card.locator('[data-testid="calibration-verdict"]').innerText(), /^accepted/);
+    await card.locator('label:has-text("Multi-analyte calibrator, frozen aliquot") [data-testid="material-used"]').check();
+    await card.locator('label:has-text("Glucose reagent R1") [data-testid="material-used"]').check();
+    const warning = card.locator('[data-testid="material-warnings"]');
+    const lines = await warning.locator("li").allInnerTexts();
+    assert.equal(lines.length, 1, "the reagent is within its stability");
+    assert.match(lines[0], /^Multi-analyte calibrator, frozen aliquot lot DC-0907: past its stability after thawing \(2026-11-27 \d\d:\d\d\)$/);
+    await card.locator('[data-testid="save-calibration"]').click();
+    assert.match(await card.locator('[data-testid="calibration-message"]').innerText(), /past its stability: read the warning and tick the box/);
+    assert.equal(await card.locator('[data-testid="calibration-row"]').count(), before);
+    await card.locator('[data-testid="acknowledge-materials"]').check();
+    await card.locator('[data-testid="save-calibration"]').click();
+    await page.waitForFunction(
+      (n) => document.querySelectorAll('[data-testid="calibration-GLU"] [data-testid="calibration-row"]').length === n,
+      before + 1,
+    );
+    const row = card.locator('[data-testid="calibration-row"]').first();
+    assert.match(await row.locator('[data-testid="calibration-acknowledged"]').innerText(), /^Used although warned \(acknowledged by CT\): Multi-analyte calibrator, frozen aliquot/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});

@@ -64,3 +64,46 @@ test("the countdown moves on by itself: a material expires while the page stays 
     await context.close();
   }
 });
+
+// The demo's multi-analyte control is still usable, but its ALT ran out yesterday: a QC
+// run of ALT with it warns and is refused until the warning is acknowledged, and the
+// acknowledgement stays on the run; creatinine with the same control is not warned.
+test("a control past its stability for the test's analyte is refused until acknowledged, and the acknowledgement is kept", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "initials").fill("mk");
+    await byTestId(page, "initials").press("Enter");
+    await waitSaved(page);
+    await byTestId(page, "nav-runs").click();
+    const crea = byTestId(page, "runs-CREA");
+    await crea.locator('[data-testid="new-run-CREA"]').click();
+    await crea.locator('label:has-text("Multi-analyte control, normal (lyophilised) lot DQ-N-2611") [data-testid="material-used"]').check();
+    assert.equal(await crea.locator('[data-testid="material-warnings"]').count(), 0, "creatinine is not an analyte with its own stability there");
+
+    const alt = byTestId(page, "runs-ALT");
+    const before = await alt.locator('[data-testid="qc-run"]').count();
+    await alt.locator('[data-testid="new-run-ALT"]').click();
+    // Any value: the decision does not matter here, only that the run can be saved.
+    await alt.locator('[data-testid="run-value-0"]').fill("40");
+    await alt.locator(".run-preview").waitFor();
+    await alt.locator('label:has-text("Multi-analyte control, normal (lyophilised) lot DQ-N-2611") [data-testid="material-used"]').check();
+    const warning = alt.locator('[data-testid="material-warnings"]');
+    assert.match(await warning.innerText(), /Multi-analyte control, normal \(lyophilised\) lot DQ-N-2611: ALT is past its stability after opening or reconstitution in this material \(2026-11-26 \d\d:\d\d\)/);
+    await alt.locator('[data-testid="save-run"]').click();
+    assert.match(await alt.locator('[data-testid="run-message"]').innerText(), /past its stability: read the warning and tick the box/);
+    assert.equal(await alt.locator('[data-testid="qc-run"]').count(), before);
+    await alt.locator('[data-testid="acknowledge-materials"]').check();
+    await alt.locator('[data-testid="save-run"]').click();
+    await page.waitForFunction(
+      (n) => document.querySelectorAll('[data-testid="runs-ALT"] [data-testid="qc-run"]').length === n,
+      before + 1,
+    );
+    const kept = alt.locator('[data-testid="qc-run"]').first().locator('[data-testid="run-acknowledged"]');
+    assert.match(await kept.innerText(), /^Used although warned \(acknowledged by MK\): .*ALT is past its stability/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
