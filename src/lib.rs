@@ -16,6 +16,7 @@ pub mod export;
 pub mod journal;
 pub mod lab;
 pub mod mirror;
+pub mod period;
 pub mod store;
 pub mod ui;
 pub mod usage;

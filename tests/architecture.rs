@@ -34,6 +34,7 @@ fn engine_imports_no_browser_crate_and_no_storage() {
     files.push(src.join("corrective.rs"));
     files.push(src.join("due.rs"));
     files.push(src.join("usage.rs"));
+    files.push(src.join("period.rs"));
     let forbidden = [
         "leptos",
         "web_sys",

@@ -563,9 +563,8 @@ pub fn MonthlyReview(
                     <input type="month" data-testid="review-month"
                         prop:value=move || { let (y, m) = month(); format!("{y:04}-{m:02}") }
                         on:change=move |ev| {
-                            let v = event_target_value(&ev);
-                            let parsed = v.split_once('-').and_then(|(y, m)| Some((y.parse().ok()?, m.parse().ok()?)));
-                            set_chosen.set(parsed.filter(|(_, m): &(i32, u32)| (1..=12).contains(m)));
+                            let parsed = crate::period::Month::parse(&event_target_value(&ev));
+                            set_chosen.set(parsed.map(|m| (m.year, m.month)));
                         } />
                 </label>
                 " "

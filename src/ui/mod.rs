@@ -56,6 +56,42 @@ pub(super) fn per_test(
     }
 }
 
+/// The month a long history is shown for, with the previous and next month one click
+/// away and any month by its picker.
+#[component]
+pub(super) fn PeriodPicker(
+    /// The month shown.
+    period: RwSignal<crate::period::Month>,
+    /// The test selector of the month field.
+    testid: &'static str,
+) -> impl IntoView {
+    view! {
+        <p class="period no-print">
+            <button data-testid=format!("{testid}-previous") on:click=move |_| period.update(|m| *m = m.step(-1))>
+                "◀ previous month"
+            </button>
+            " "
+            <label>"Month "
+                <input type="month" data-testid=testid
+                    prop:value=move || period.get().iso()
+                    on:change=move |ev| {
+                        if let Some(m) = crate::period::Month::parse(&event_target_value(&ev)) {
+                            period.set(m);
+                        }
+                    } />
+            </label>
+            " "
+            <button data-testid=format!("{testid}-next") on:click=move |_| period.update(|m| *m = m.step(1))>
+                "next month ▶"
+            </button>
+            " "
+            <button data-testid=format!("{testid}-this") on:click=move |_| period.set(crate::period::Month::of(Utc::now(), &Local))>
+                "this month"
+            </button>
+        </p>
+    }
+}
+
 /// The demo lab, embedded at build time from `demo-data/`.
 pub const DEMO_LAB: &str = include_str!("../../demo-data/demo-lab.json");
 

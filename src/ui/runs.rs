@@ -11,6 +11,7 @@ use crate::engine::readings::{KineticPoint, KineticSettings};
 use crate::engine::results::{sample_result, Disposition, SampleReading, SampleResult};
 use crate::entry;
 use crate::lab::{ControlRun, CorrectiveAction, Lab, ReadingMode, TestSetup};
+use crate::period::Month;
 
 #[component]
 pub fn RunsView(
@@ -21,10 +22,15 @@ pub fn RunsView(
     /// The technician's initials.
     technician: ReadSignal<String>,
 ) -> impl IntoView {
-    super::per_test(lab, move |l, t| {
-        view! { <TestRuns lab=l.clone() test=t.clone() save=save technician=technician /> }
-            .into_any()
-    })
+    // The month shown: this month until another is chosen.
+    let period = RwSignal::new(Month::of(chrono::Utc::now(), &Local));
+    view! {
+        <super::PeriodPicker period=period testid="runs-period" />
+        {super::per_test(lab, move |l, t| {
+            view! { <TestRuns lab=l.clone() test=t.clone() save=save technician=technician period=period /> }
+                .into_any()
+        })}
+    }
 }
 
 pub(super) fn decision_words(d: Decision) -> &'static str {
@@ -42,6 +48,7 @@ fn TestRuns(
     test: TestSetup,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
+    period: RwSignal<Month>,
 ) -> impl IntoView {
     let history = lab.control_history(&test.meta.id);
     let names: Vec<String> = history.levels.iter().map(|l| l.name.clone()).collect();
@@ -50,23 +57,35 @@ fn TestRuns(
         .iter()
         .map(|r| r.run_at.with_timezone(&Local).format("%d %b").to_string())
         .collect();
-    let rows = match qc::evaluate(&history.targets, &history.values, &test.qc_rules) {
+    // Every run is judged with its whole history; only the chosen month's are drawn.
+    let verdicts = qc::evaluate(&history.targets, &history.values, &test.qc_rules);
+    let total = history.runs.len();
+    let lab_for_rows = lab.clone();
+    let targets = history.targets.clone();
+    let runs: Vec<ControlRun> = history.runs.iter().map(|r| (*r).clone()).collect();
+    let values = history.values.clone();
+    let names_for_rows = names.clone();
+    let rows = move || {
+        let month = period.get();
+        let lab = &lab_for_rows;
+        let (names, history_targets) = (&names_for_rows, &targets);
+        match &verdicts {
         Err(e) => view! { <tr><td colspan="4">{format!("QC cannot be evaluated: {e}")}</td></tr> }.into_any(),
-        Ok(verdicts) => history
-            .runs
+        Ok(verdicts) => runs
             .iter()
-            .zip(&history.values)
-            .zip(verdicts)
+            .zip(&values)
+            .zip(verdicts.iter().cloned())
+            .filter(|((run, _), _)| month.contains(run.run_at, &Local))
             .rev()
             .map(|((run, values), verdict)| {
-                let shown = results_text(values, &history.targets);
-                let action = corrective_view(&lab, run, verdict.decision, save, technician);
+                let shown = results_text(values, history_targets);
+                let action = corrective_view(lab, run, verdict.decision, save, technician);
                 view! {
                     <tr class=format!("decision-{}", verdict.decision.code()) data-testid="qc-run">
                         <td>{run.run_at.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()}</td>
                         <td>{run.meta.by.clone()}</td>
                         <td>{shown}</td>
-                        <td>{verdict_view(&verdict, &names, &run_dates)}{action}</td>
+                        <td>{verdict_view(&verdict, names, &run_dates)}{action}</td>
                         <td class="no-print">
                             <super::records::HistoryButton id=run.meta.id.clone() />
                             " "
@@ -77,6 +96,16 @@ fn TestRuns(
             })
             .collect_view()
             .into_any(),
+        }
+    };
+    let shown_count = {
+        let runs: Vec<chrono::DateTime<chrono::Utc>> =
+            history.runs.iter().map(|r| r.run_at).collect();
+        move || {
+            let month = period.get();
+            let n = runs.iter().filter(|t| month.contains(**t, &Local)).count();
+            format!("{n} run(s) in {} of {total} recorded.", month.iso())
+        }
     };
     let rules: Vec<&str> = test.qc_rules.iter().map(|r| r.rule.code()).collect();
     let empty = history.runs.is_empty();
@@ -90,6 +119,7 @@ fn TestRuns(
             <Show when=move || empty>
                 <p class="empty">"No QC runs recorded yet."</p>
             </Show>
+            <p class="muted" data-testid="runs-shown">{shown_count}</p>
             <table>
                 <thead><tr><th>"Run"</th><th>"By"</th><th>"Control results"</th><th>"Decision"</th><th class="no-print">"Record"</th></tr></thead>
                 <tbody>{rows}</tbody>

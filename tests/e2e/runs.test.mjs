@@ -146,3 +146,33 @@ test("patient samples go through the calibration in use and are held when QC rej
     await context.close();
   }
 });
+
+// A long history is shown a month at a time: this month by default, the previous and
+// next month one click away; every run is still judged with its whole history.
+test("the QC runs view shows the chosen month only", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await waitSaved(page);
+    await byTestId(page, "nav-runs").click();
+    const card = byTestId(page, "runs-GLU");
+    assert.equal(await byTestId(page, "runs-period").inputValue(), "2026-11");
+    const shown = await card.locator('[data-testid="runs-shown"]').innerText();
+    const m = /^(\d+) run\(s\) in 2026-11 of (\d+) recorded\.$/.exec(shown);
+    assert.ok(m, shown);
+    assert.equal(Number(m[1]), await card.locator('[data-testid="qc-run"]').count());
+    const rows = await card.locator('[data-testid="qc-run"] td:first-child').allInnerTexts();
+    assert.ok(rows.length > 0 && rows.every((r) => r.startsWith("2026-11-")), rows.join("\n"));
+    await byTestId(page, "runs-period-previous").click();
+    await page.waitForFunction(() => /^0 run\(s\) in 2026-10 of /.test(document.querySelector('[data-testid="runs-GLU"] [data-testid="runs-shown"]').innerText));
+    assert.equal(await card.locator('[data-testid="qc-run"]').count(), 0);
+    await byTestId(page, "runs-period-next").click();
+    await page.waitForFunction(() => /in 2026-11 of/.test(document.querySelector('[data-testid="runs-GLU"] [data-testid="runs-shown"]').innerText));
+    // The newest run keeps the decision the whole history gives it.
+    assert.match(await card.locator('[data-testid="qc-run"]').first().locator('[data-testid="qc-decision"]').innerText(), /^reject/);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
