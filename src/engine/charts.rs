@@ -21,6 +21,8 @@ pub struct LeveyJennings {
     /// y range: at least mean ± 4 SD, widened to show every point.
     pub y_min: f64,
     pub y_max: f64,
+    /// What each run is called on the x axis (its date), run 1 first; empty: numbers.
+    pub run_labels: Vec<String>,
 }
 
 impl LeveyJennings {
@@ -59,7 +61,27 @@ impl LeveyJennings {
             runs: values.len().max(1),
             y_min: lo,
             y_max: hi,
+            run_labels: Vec::new(),
         })
+    }
+
+    /// Name the runs on the x axis (one label per run, run 1 first).
+    pub fn with_run_labels(mut self, labels: Vec<String>) -> LeveyJennings {
+        self.run_labels = labels;
+        self
+    }
+
+    /// The axis label at `x`: the run's label where `x` is a run, else nothing.
+    pub fn x_label(&self, x: f64) -> String {
+        let k = x.round();
+        if (x - k).abs() > 1e-6 || k < 1.0 {
+            return String::new();
+        }
+        match self.run_labels.get(k as usize - 1) {
+            Some(l) => l.clone(),
+            None if self.run_labels.is_empty() && k as usize <= self.runs => format!("{k:.0}"),
+            None => String::new(),
+        }
     }
 
     /// The horizontal lines: (multiple of SD, value) for −3 … +3.
@@ -161,5 +183,17 @@ mod trend_tests {
         let t = Trend::new("blank", &[0.040, 0.050], Some((0.0, 0.08))).unwrap();
         assert_eq!(t.points, vec![(1.0, 0.040), (2.0, 0.050)]);
         assert!(t.y_min < 0.0 && t.y_max > 0.08);
+    }
+
+    #[test]
+    fn runs_are_named_by_their_labels_on_the_axis() {
+        let lj = LeveyJennings::new("GLU N", 100.0, 2.0, &[Some(101.0), Some(99.0)], &[]).unwrap();
+        assert_eq!(
+            (lj.x_label(1.0), lj.x_label(2.5), lj.x_label(3.0)),
+            ("1".into(), "".into(), "".into())
+        );
+        let lj = lj.with_run_labels(vec!["26 Nov".into(), "27 Nov".into()]);
+        assert_eq!(lj.x_label(2.0), "27 Nov");
+        assert_eq!(lj.x_label(0.0), "");
     }
 }

@@ -65,7 +65,7 @@ fn draw(el: web_sys::HtmlCanvasElement, s: &LeveyJennings) -> Result<(), String>
         .configure_mesh()
         .disable_mesh()
         .x_labels(10)
-        .x_label_formatter(&|x| format!("{x:.0}"))
+        .x_label_formatter(&|x| s.x_label(*x))
         .x_desc("run")
         .y_labels(7)
         .draw()

@@ -954,7 +954,11 @@ fn ControlCharts(
     /// The lab being worked on.
     lab: ReadSignal<Option<Lab>>,
 ) -> impl IntoView {
-    move || {
+    // The month charted: this month until another is chosen. Decisions come from the
+    // whole history; the statistics below each chart are this month's and overall.
+    let period = RwSignal::new(crate::period::Month::of(Utc::now(), &Local));
+    let charts = move || {
+        let month = period.get();
         lab.with(|l| {
             let Some(l) = l else {
                 return view! { <EmptyState text=NO_LAB /> }.into_any();
@@ -966,17 +970,31 @@ fn ControlCharts(
                     crate::engine::qc::evaluate(&h.targets, &h.values, &t.qc_rules)
                         .map(|v| v.iter().map(|r| r.decision).collect())
                         .unwrap_or_default();
+                let in_month: Vec<usize> = (0..h.runs.len())
+                    .filter(|&i| month.contains(h.runs[i].run_at, &Local))
+                    .collect();
+                let labels: Vec<String> = in_month
+                    .iter()
+                    .map(|&i| h.runs[i].run_at.with_timezone(&Local).format("%d %b").to_string())
+                    .collect();
+                let month_decisions: Vec<crate::engine::qc::Decision> =
+                    in_month.iter().filter_map(|&i| decisions.get(i).copied()).collect();
                 for k in 0..h.levels.len() {
                     let values: Vec<Option<f64>> = h.values.iter().map(|run| run[k]).collect();
+                    let month_values: Vec<Option<f64>> = in_month.iter().map(|&i| values[i]).collect();
+                    if month_values.iter().all(Option::is_none) {
+                        continue;
+                    }
                     let Some(series) = LeveyJennings::new(
-                        &format!("{} {} ({})", t.code, h.levels[k].name, t.unit),
+                        &format!("{} {} ({}) — {}", t.code, h.levels[k].name, t.unit, month.iso()),
                         h.targets[k].mean,
                         h.targets[k].sd,
-                        &values,
-                        &decisions,
+                        &month_values,
+                        &month_decisions,
                     ) else {
                         continue;
                     };
+                    let series = series.with_run_labels(labels.clone());
                     let results: Vec<ControlResult> = h
                         .runs
                         .iter()
@@ -995,7 +1013,7 @@ fn ControlCharts(
                 }
             }
             if panels.is_empty() {
-                return view! { <EmptyState text="No control results to chart yet." /> }.into_any();
+                return view! { <EmptyState text="No control results to chart in this month: choose another above." /> }.into_any();
             }
             panels
                 .into_iter()
@@ -1010,6 +1028,10 @@ fn ControlCharts(
                 .collect_view()
                 .into_any()
         })
+    };
+    view! {
+        <PeriodPicker period=period testid="charts-period" />
+        {charts}
     }
 }
 

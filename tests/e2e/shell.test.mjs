@@ -71,6 +71,13 @@ test("the demo lab loads from the embedded file and draws control charts", async
     return n;
   });
   assert.ok(inked > 500, `only ${inked} inked pixels`);
+  // This month's runs, named by their dates on the axis; the month before has none.
+  assert.match(await byTestId(page, "view-charts").locator("figure.chart figcaption").first().innerText(), /^GLU .* — 2026-11$/);
+  await byTestId(page, "charts-period-previous").click();
+  await page.waitForFunction(() => document.querySelectorAll('[data-testid="lj-chart"]').length === 0);
+  assert.match(await byTestId(page, "view-charts").innerText(), /No control results to chart in this month/);
+  await byTestId(page, "charts-period-this").click();
+  await charts.first().waitFor();
   // Statistics beside each chart: the demo has 26 runs; those of rejected runs do not
   // count, and 20 accepted results make the lab's own target available.
   const stats = await byTestId(page, "level-stats").first().innerText();
