@@ -4,7 +4,80 @@
 //! mean with lines at ±1, ±2 and ±3 SD. Each point carries its run's QC decision so
 //! the chart can mark warnings and rejections (by shape as well as colour).
 
+use super::calibration::{Curve, Fit};
 use super::qc::Decision;
+
+/// Points the fitted curve is drawn through, across the calibrated range.
+pub const CURVE_SAMPLES: usize = 120;
+
+/// A calibration as drawn before it is saved: the calibrators' net signals, the fitted
+/// curve through them, the last accepted curve over the same range (if any), and the
+/// residuals (signal − fitted) for the strip beneath.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CurvePlot {
+    pub title: String,
+    /// (concentration, net signal) of each calibrator reading.
+    pub points: Vec<(f64, f64)>,
+    /// (concentration, signal) along the fitted curve.
+    pub curve: Vec<(f64, f64)>,
+    /// Along the last accepted curve; empty when there is none.
+    pub previous: Vec<(f64, f64)>,
+    /// (concentration, residual) per calibrator reading.
+    pub residuals: Vec<(f64, f64)>,
+    pub x_max: f64,
+    pub y_min: f64,
+    pub y_max: f64,
+    /// The residual strip's half-height (at least a hair above zero).
+    pub residual_max: f64,
+}
+
+impl CurvePlot {
+    /// From a fit and the curve in use before it; `None` when nothing is finite to draw.
+    pub fn new(title: &str, fit: &Fit, previous: Option<&Curve>) -> Option<CurvePlot> {
+        let points: Vec<(f64, f64)> = fit
+            .points
+            .iter()
+            .map(|p| (p.conc, p.signal))
+            .filter(|(x, y)| x.is_finite() && y.is_finite())
+            .collect();
+        let x_max = points.iter().map(|p| p.0).fold(0.0, f64::max) * 1.05;
+        if points.is_empty() || !(x_max > 0.0) {
+            return None;
+        }
+        let along = |c: &Curve| -> Vec<(f64, f64)> {
+            (0..=CURVE_SAMPLES)
+                .map(|i| x_max * i as f64 / CURVE_SAMPLES as f64)
+                .map(|x| (x, c.signal_at(x)))
+                .filter(|(_, y)| y.is_finite())
+                .collect()
+        };
+        let curve = along(&fit.curve);
+        let previous = previous.map(along).unwrap_or_default();
+        let ys = points.iter().chain(&curve).chain(&previous).map(|p| p.1);
+        let (lo, hi) = ys.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), y| {
+            (lo.min(y), hi.max(y))
+        });
+        let pad = ((hi - lo) * 0.05).max(1e-3);
+        let residuals: Vec<(f64, f64)> = fit
+            .points
+            .iter()
+            .map(|p| (p.conc, p.residual))
+            .filter(|(x, r)| x.is_finite() && r.is_finite())
+            .collect();
+        let residual_max = residuals.iter().map(|r| r.1.abs()).fold(1e-4, f64::max) * 1.2;
+        Some(CurvePlot {
+            title: title.to_string(),
+            points,
+            curve,
+            previous,
+            residuals,
+            x_max,
+            y_min: (lo - pad).min(0.0),
+            y_max: hi + pad,
+            residual_max,
+        })
+    }
+}
 
 /// One control level's Levey–Jennings chart.
 #[derive(Debug, Clone, PartialEq)]
@@ -195,5 +268,45 @@ mod trend_tests {
         let lj = lj.with_run_labels(vec!["26 Nov".into(), "27 Nov".into()]);
         assert_eq!(lj.x_label(2.0), "27 Nov");
         assert_eq!(lj.x_label(0.0), "");
+    }
+
+    /// The curve is drawn through the fitted function (the same the results use), and
+    /// the residuals are the fit's own.
+    #[test]
+    fn a_calibration_plot_follows_its_fit() {
+        use crate::engine::calibration::{self, CalPoint, ModelKind, ReplicateUse, Weighting};
+        let points = [
+            CalPoint {
+                conc: 50.0,
+                signal: 0.21,
+            },
+            CalPoint {
+                conc: 100.0,
+                signal: 0.43,
+            },
+            CalPoint {
+                conc: 200.0,
+                signal: 0.84,
+            },
+        ];
+        let fit = calibration::fit(
+            ModelKind::Linear,
+            Weighting::None,
+            ReplicateUse::Individual,
+            &points,
+        )
+        .unwrap();
+        let previous = Curve::Factor { factor: 240.0 };
+        let plot = CurvePlot::new("GLU", &fit, Some(&previous)).unwrap();
+        assert_eq!(plot.points.len(), 3);
+        assert_eq!(plot.curve.len(), CURVE_SAMPLES + 1);
+        assert!((plot.x_max - 210.0).abs() < 1e-9);
+        for (x, y) in &plot.curve {
+            assert!((y - fit.curve.signal_at(*x)).abs() < 1e-12);
+        }
+        assert!((plot.previous[CURVE_SAMPLES].1 - 210.0 / 240.0).abs() < 1e-12);
+        let rss: f64 = plot.residuals.iter().map(|r| r.1 * r.1).sum();
+        assert!((rss - fit.rss).abs() < 1e-12, "{rss} vs {}", fit.rss);
+        assert!(plot.residual_max >= plot.residuals.iter().map(|r| r.1.abs()).fold(0.0, f64::max));
     }
 }

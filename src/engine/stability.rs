@@ -285,6 +285,76 @@ impl fmt::Display for StabilityError {
 
 impl std::error::Error for StabilityError {}
 
+/// The aliquot thawed at `at`. A frozen aliquot is thawed once: one already thawed is
+/// used up or discarded, never refrozen or thawed again.
+pub fn thaw(m: &Material, at: DateTime<Utc>) -> Result<Material, StabilityError> {
+    let Some(f) = &m.frozen else {
+        return Err(StabilityError(
+            "this material is not a frozen aliquot, so there is nothing to thaw".into(),
+        ));
+    };
+    if f.thawed_at.is_some() || f.thaw_count > 0 {
+        let when = f.thawed_at.map_or("before".to_string(), |t| {
+            t.format("%Y-%m-%d %H:%M UTC").to_string()
+        });
+        return Err(StabilityError(format!(
+            "this aliquot was already thawed ({when}): a thawed aliquot is used or discarded, \
+             never refrozen or thawed again; thaw another aliquot"
+        )));
+    }
+    if at < f.frozen_at {
+        return Err(StabilityError(
+            "the thaw would be before the aliquot was frozen: check the PC's clock".into(),
+        ));
+    }
+    let mut thawed = m.clone();
+    if let Some(f) = thawed.frozen.as_mut() {
+        f.thawed_at = Some(at);
+        f.thaw_count = 1;
+    }
+    Ok(thawed)
+}
+
+/// `count` aliquots of `source` frozen at `at`: each keeps the maker's expiry and the
+/// analytes of the source, is stable `frozen_hours` in the freezer and `after_thaw_hours`
+/// once thawed. The source's own opening and on-board times do not carry over.
+pub fn aliquots(
+    source: &Material,
+    count: usize,
+    frozen_hours: f64,
+    after_thaw_hours: f64,
+    at: DateTime<Utc>,
+) -> Result<Vec<Material>, StabilityError> {
+    if !(1..=200).contains(&count) {
+        return Err(StabilityError(
+            "aliquots: make between 1 and 200 at a time".into(),
+        ));
+    }
+    check_hours("stability while frozen", Some(frozen_hours))?;
+    check_hours("stability after thawing", Some(after_thaw_hours))?;
+    if source.frozen.is_some() {
+        return Err(StabilityError(
+            "this is already a frozen aliquot: a thawed aliquot is never refrozen".into(),
+        ));
+    }
+    let one = Material {
+        expiry: source.expiry,
+        opened_at: None,
+        in_use_hours: None,
+        on_board_since: None,
+        on_board_hours: None,
+        frozen: Some(FrozenAliquot {
+            frozen_at: at,
+            frozen_hours,
+            thawed_at: None,
+            thaw_count: 0,
+            after_thaw_hours,
+        }),
+        analytes: source.analytes.clone(),
+    };
+    Ok(vec![one; count])
+}
+
 /// A stability in hours as a duration; `check_hours` has bounded it, and a value that
 /// slipped past (never expected) becomes "no time at all" rather than an overflow.
 fn hours(h: f64) -> Duration {
@@ -661,5 +731,58 @@ mod tests {
         )
         .unwrap_err();
         assert!(e.0.contains("in_use_hours"), "{}", e.0);
+    }
+
+    /// Thaw once (common practice, and what the maker's inserts for frozen aliquots
+    /// say): the first thaw starts the after-thaw stability; a second is refused, as is
+    /// freezing an aliquot again.
+    #[test]
+    fn an_aliquot_is_thawed_once_and_never_refrozen() {
+        let source = Material {
+            expiry: "2027-06".parse().unwrap(),
+            opened_at: Some(utc("2026-11-01T08:00:00Z")),
+            in_use_hours: Some(8.0),
+            on_board_since: None,
+            on_board_hours: None,
+            frozen: None,
+            analytes: vec![],
+        };
+        let made = aliquots(&source, 5, 30.0 * 24.0, 2.0, utc("2026-11-01T08:30:00Z")).unwrap();
+        assert_eq!(made.len(), 5);
+        assert!(made
+            .iter()
+            .all(|a| a.opened_at.is_none() && a.frozen.as_ref().unwrap().thaw_count == 0));
+        assert!(
+            thaw(&source, utc("2026-11-02T08:00:00Z")).is_err(),
+            "not an aliquot"
+        );
+        let thawed = thaw(&made[0], utc("2026-11-10T08:00:00Z")).unwrap();
+        let r = evaluate(
+            &thawed,
+            utc("2026-11-10T09:00:00Z"),
+            &Utc,
+            WarningWindow::default(),
+        )
+        .unwrap();
+        assert_eq!(
+            (r.material.governed_by, r.material.until),
+            (Limit::AfterThaw, utc("2026-11-10T10:00:00Z"))
+        );
+        let again = thaw(&thawed, utc("2026-11-10T11:00:00Z")).unwrap_err();
+        assert!(
+            again.0.contains("already thawed (2026-11-10 08:00 UTC)"),
+            "{}",
+            again.0
+        );
+        assert!(
+            aliquots(&thawed, 1, 24.0, 2.0, utc("2026-11-10T11:00:00Z")).is_err(),
+            "never refrozen"
+        );
+        assert!(
+            thaw(&made[1], utc("2026-10-31T08:00:00Z")).is_err(),
+            "before it was frozen"
+        );
+        assert!(aliquots(&source, 0, 24.0, 2.0, utc("2026-11-01T08:30:00Z")).is_err());
+        assert!(aliquots(&source, 2, -1.0, 2.0, utc("2026-11-01T08:30:00Z")).is_err());
     }
 }

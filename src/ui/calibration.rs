@@ -153,6 +153,8 @@ struct Preview {
     readings: CalibrationReadings,
     fit: Result<Fit, String>,
     verdict: Option<Verdict>,
+    /// The curve in use, drawn beside the new one.
+    previous: Option<crate::engine::calibration::Curve>,
 }
 
 fn preview(
@@ -185,6 +187,7 @@ fn preview(
         readings,
         fit: fit.map_err(|e| e.message),
         verdict,
+        previous,
     })
 }
 
@@ -373,7 +376,13 @@ fn preview_view(p: &Preview) -> impl IntoView {
                     }
                 })
                 .collect_view();
+            let plot = crate::engine::charts::CurvePlot::new(
+                "This calibration, before it is saved",
+                f,
+                p.previous.as_ref(),
+            );
             view! {
+                {plot.map(|series| view! { <super::chart::CurveChart series=series /> })}
                 <p data-testid="calibration-params">{format!("{}{r2}", params.join(", "))}</p>
                 <table>
                     <thead><tr><th>"Conc"</th><th>"Net signal"</th><th>"Back-calculated"</th><th>"Recovery"</th></tr></thead>

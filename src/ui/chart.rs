@@ -6,7 +6,7 @@ use leptos::prelude::*;
 use plotters::prelude::*;
 use plotters_canvas::CanvasBackend;
 
-use crate::engine::charts::{LeveyJennings, Trend};
+use crate::engine::charts::{CurvePlot, LeveyJennings, Trend};
 use crate::engine::qc::Decision;
 
 /// Points and lines of the data.
@@ -105,6 +105,96 @@ fn draw(el: web_sys::HtmlCanvasElement, s: &LeveyJennings) -> Result<(), String>
         }
         .map_err(|e| e.to_string())?;
     }
+    root.present().map_err(|e| e.to_string())?;
+    Ok(())
+}
+
+/// A new calibration's curve through its calibrators, the last accepted curve dashed
+/// beside it, and the residuals in a strip beneath.
+#[component]
+pub fn CurveChart(
+    /// The series to draw.
+    series: CurvePlot,
+) -> impl IntoView {
+    let title = series.title.clone();
+    view! {
+        <figure class="chart curve">
+            {canvas_figure(series, title, (560, 340), "curve-chart", draw_curve)}
+            <p class="legend muted">"● calibrator readings · — this fit · - - last accepted curve · below: residuals (signal − fit)"</p>
+        </figure>
+    }
+}
+
+fn draw_curve(el: web_sys::HtmlCanvasElement, s: &CurvePlot) -> Result<(), String> {
+    let backend = CanvasBackend::with_canvas_object(el).ok_or("no canvas context")?;
+    let root = backend.into_drawing_area();
+    root.fill(&WHITE).map_err(|e| e.to_string())?;
+    let (top, bottom) = root.split_vertically(240);
+    let mut chart = ChartBuilder::on(&top)
+        .margin(8)
+        .x_label_area_size(24)
+        .y_label_area_size(56)
+        .build_cartesian_2d(0.0..s.x_max, s.y_min..s.y_max)
+        .map_err(|e| e.to_string())?;
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .x_labels(8)
+        .y_labels(6)
+        .y_desc("net signal")
+        .draw()
+        .map_err(|e| e.to_string())?;
+    let grey = RGBColor(120, 120, 120);
+    for pair in s.previous.chunks(2) {
+        if let [a, b] = pair {
+            chart
+                .draw_series(LineSeries::new(vec![*a, *b], grey.stroke_width(1)))
+                .map_err(|e| e.to_string())?;
+        }
+    }
+    chart
+        .draw_series(LineSeries::new(
+            s.curve.iter().copied(),
+            INK.stroke_width(2),
+        ))
+        .map_err(|e| e.to_string())?;
+    chart
+        .draw_series(s.points.iter().map(|&p| Circle::new(p, 4, INK.filled())))
+        .map_err(|e| e.to_string())?;
+    let mut strip = ChartBuilder::on(&bottom)
+        .margin(8)
+        .x_label_area_size(24)
+        .y_label_area_size(56)
+        .build_cartesian_2d(0.0..s.x_max, -s.residual_max..s.residual_max)
+        .map_err(|e| e.to_string())?;
+    strip
+        .configure_mesh()
+        .disable_mesh()
+        .x_labels(8)
+        .y_labels(3)
+        .x_desc("concentration")
+        .draw()
+        .map_err(|e| e.to_string())?;
+    strip
+        .draw_series(LineSeries::new(
+            vec![(0.0, 0.0), (s.x_max, 0.0)],
+            RGBColor(30, 30, 30).stroke_width(1),
+        ))
+        .map_err(|e| e.to_string())?;
+    strip
+        .draw_series(
+            s.residuals
+                .iter()
+                .map(|&(x, r)| PathElement::new(vec![(x, 0.0), (x, r)], LIMIT_RED.stroke_width(2))),
+        )
+        .map_err(|e| e.to_string())?;
+    strip
+        .draw_series(
+            s.residuals
+                .iter()
+                .map(|&p| Circle::new(p, 3, LIMIT_RED.filled())),
+        )
+        .map_err(|e| e.to_string())?;
     root.present().map_err(|e| e.to_string())?;
     Ok(())
 }

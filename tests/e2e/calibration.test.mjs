@@ -30,6 +30,17 @@ test("a new glucose calibration is fitted, judged, saved and kept", async () => 
     await card.locator('[data-testid="calibration-readings"]').fill("100: 0.470 0.474");
     assert.match(await card.locator('[data-testid="calibration-verdict"]').innerText(), /^accepted/);
     assert.match(await card.locator('[data-testid="calibration-params"]').innerText(), /factor = 238\.37/);
+    // Its curve is drawn before it is saved: calibrators, the fit, the last accepted
+    // curve and the residual strip, on a canvas with ink on it.
+    const curve = card.locator('[data-testid="curve-chart"]');
+    await curve.waitFor();
+    const inked = await curve.evaluate((c) => {
+      const d = c.getContext("2d").getImageData(0, 0, c.width, c.height).data;
+      let n = 0;
+      for (let i = 0; i < d.length; i += 4) if (d[i] < 200 || d[i + 1] < 200 || d[i + 2] < 200) n++;
+      return n;
+    });
+    assert.ok(inked > 500, `only ${inked} inked pixels`);
     // No initials yet: refused with the reason.
     await card.locator('[data-testid="save-calibration"]').click();
     assert.match(await card.locator('[data-testid="calibration-message"]').innerText(), /initials/);
