@@ -41,7 +41,7 @@ impl CurvePlot {
             .filter(|(x, y)| x.is_finite() && y.is_finite())
             .collect();
         let x_max = points.iter().map(|p| p.0).fold(0.0, f64::max) * 1.05;
-        if points.is_empty() || !(x_max > 0.0) {
+        if points.is_empty() || x_max.is_nan() || x_max <= 0.0 {
             return None;
         }
         let along = |c: &Curve| -> Vec<(f64, f64)> {
