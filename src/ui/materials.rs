@@ -25,6 +25,7 @@ fn row(
     by: String,
     u: &UsableUntil,
     record: Option<String>,
+    actions: AnyView,
 ) -> impl IntoView {
     let class = match u.state {
         StabilityState::Ok => "state-ok",
@@ -42,7 +43,7 @@ fn row(
             <td>{state_word(u.state)}{u.remarks.iter().map(|r| format!("; {r}")).collect::<String>()}</td>
             <td class="no-print">{record.map(|id| view! {
                 <super::records::HistoryButton id=id.clone() />" "<super::records::VoidButton id=id />
-            })}</td>
+            })}{actions}</td>
         </tr>
     }
 }
@@ -69,11 +70,12 @@ pub fn MaterialsView(
                 .iter()
                 .map(|m| match stability::evaluate(&m.stability, now, &Local, WarningWindow::default()) {
                     Ok(r) => {
-                        let main = row(m.name.clone(), m.lot.clone(), m.meta.by.clone(), &r.material, Some(m.meta.id.clone()));
+                        let actions = lifecycle_actions(m, technician);
+                        let main = row(m.name.clone(), m.lot.clone(), m.meta.by.clone(), &r.material, Some(m.meta.id.clone()), actions);
                         let per_analyte = r
                             .analytes
                             .iter()
-                            .map(|(a, u)| row(format!("  {} — {a}", m.name), m.lot.clone(), m.meta.by.clone(), u, None))
+                            .map(|(a, u)| row(format!("  {} — {a}", m.name), m.lot.clone(), m.meta.by.clone(), u, None, ().into_any()))
                             .collect_view();
                         view! { {main}{per_analyte} }.into_any()
                     }
@@ -106,6 +108,125 @@ pub fn MaterialsView(
                  for use decide every stability."
             </p>
         </section>
+    }
+}
+
+/// On a material's line: thaw a frozen aliquot (once), or freeze aliquots of a material
+/// that is not itself an aliquot. The lab is read when the button is used.
+fn lifecycle_actions(m: &crate::lab::MaterialRecord, technician: ReadSignal<String>) -> AnyView {
+    let id = m.meta.id.clone();
+    match &m.stability.frozen {
+        Some(f) if f.thawed_at.is_none() && f.thaw_count == 0 => {
+            view! { " " <ThawButton id=id technician=technician /> }.into_any()
+        }
+        Some(_) => ().into_any(),
+        None => view! { " " <FreezeAliquots id=id technician=technician /> }.into_any(),
+    }
+}
+
+#[component]
+fn ThawButton(id: String, technician: ReadSignal<String>) -> impl IntoView {
+    let trail = expect_context::<super::Trail>();
+    let (message, set_message) = signal(None::<String>);
+    let thaw = move |_| {
+        if let Err(e) = super::new_record(technician) {
+            return set_message.set(Some(e));
+        }
+        let Some(mut lab) = trail.current_lab() else {
+            return;
+        };
+        let now = Utc::now();
+        let Some(m) = lab.materials.iter_mut().find(|m| m.meta.id == id) else {
+            return set_message.set(Some("this material is no longer in the list".into()));
+        };
+        match stability::thaw(&m.stability, now) {
+            Ok(thawed) => {
+                m.stability = thawed;
+                let reason = format!(
+                    "aliquot thawed {}",
+                    now.with_timezone(&Local).format("%Y-%m-%d %H:%M")
+                );
+                trail.amend.run(super::Change {
+                    lab,
+                    reason: Some(reason),
+                });
+            }
+            Err(e) => set_message.set(Some(e.0)),
+        }
+    };
+    view! {
+        <button data-testid="thaw" on:click=thaw>"thaw now"</button>
+        {move || message.get().map(|m| view! { <span class="problem" data-testid="thaw-message">{m}</span> })}
+    }
+}
+
+#[component]
+fn FreezeAliquots(id: String, technician: ReadSignal<String>) -> impl IntoView {
+    let trail = expect_context::<super::Trail>();
+    let (count, set_count) = signal(String::new());
+    let (frozen_days, set_frozen_days) = signal(String::new());
+    let (thaw_hours, set_thaw_hours) = signal(String::new());
+    let (message, set_message) = signal(None::<String>);
+    let make = move |_| {
+        let one = |text: String, what: &str| -> Result<f64, String> {
+            match crate::entry::numbers(&text, what)?.as_slice() {
+                [x] => Ok(*x),
+                _ => Err(format!("{what}: one number")),
+            }
+        };
+        let parsed = (|| {
+            let n = one(count.get_untracked(), "aliquots")?;
+            if n.fract() != 0.0 || !(1.0..=200.0).contains(&n) {
+                return Err("aliquots: a whole number from 1 to 200".to_string());
+            }
+            let days = one(frozen_days.get_untracked(), "days frozen")?;
+            let hours = one(thaw_hours.get_untracked(), "hours after thawing")?;
+            Ok((n as usize, days * 24.0, hours))
+        })();
+        let (n, frozen_hours, after_thaw_hours) = match parsed {
+            Ok(p) => p,
+            Err(e) => return set_message.set(Some(e)),
+        };
+        let Some(mut lab) = trail.current_lab() else {
+            return;
+        };
+        let Some(source) = lab.materials.iter().find(|m| m.meta.id == id).cloned() else {
+            return set_message.set(Some("this material is no longer in the list".into()));
+        };
+        let made = match stability::aliquots(
+            &source.stability,
+            n,
+            frozen_hours,
+            after_thaw_hours,
+            Utc::now(),
+        ) {
+            Ok(m) => m,
+            Err(e) => return set_message.set(Some(e.0)),
+        };
+        for (k, st) in made.into_iter().enumerate() {
+            let (meta, _) = match super::new_record(technician) {
+                Ok(m) => m,
+                Err(e) => return set_message.set(Some(e)),
+            };
+            lab.materials.push(crate::lab::MaterialRecord {
+                meta,
+                kind: source.kind,
+                name: format!("{}, frozen aliquot {}/{n}", source.name, k + 1),
+                lot: source.lot.clone(),
+                stability: st,
+            });
+        }
+        trail.amend.run(super::Change { lab, reason: None });
+    };
+    view! {
+        <details class="freeze">
+            <summary data-testid="freeze-aliquots">"freeze aliquots"</summary>
+            <label>"aliquots "<input size="3" data-testid="aliquot-count" on:input=move |ev| set_count.set(event_target_value(&ev)) /></label>
+            " "<label>"stable frozen (days) "<input size="4" data-testid="aliquot-frozen-days" on:input=move |ev| set_frozen_days.set(event_target_value(&ev)) /></label>
+            " "<label>"after thawing (hours) "<input size="4" data-testid="aliquot-thaw-hours" on:input=move |ev| set_thaw_hours.set(event_target_value(&ev)) /></label>
+            " "<button data-testid="make-aliquots" on:click=make>"freeze"</button>
+            {move || message.get().map(|m| view! { <p class="problem" data-testid="aliquot-message">{m}</p> })}
+        </details>
     }
 }
 

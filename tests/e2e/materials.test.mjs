@@ -107,3 +107,46 @@ test("a control past its stability for the test's analyte is refused until ackno
     await context.close();
   }
 });
+
+// Frozen aliquots: made from a reconstituted control, each counted down while frozen;
+// thawed once (its after-thaw stability starts, and it cannot be thawed again); the
+// demo's calibrator aliquot, already thawed, offers no thaw at all.
+test("aliquots are frozen from a control and one is thawed, once", async () => {
+  const { context, page, problems } = await openApp(newProfile());
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "initials").fill("fa");
+    await byTestId(page, "initials").press("Enter");
+    await waitSaved(page);
+    await byTestId(page, "nav-materials").click();
+    const rows = byTestId(page, "material-row");
+    const before = await rows.count();
+    const thawedDemo = rows.filter({ hasText: "Multi-analyte calibrator, frozen aliquot" });
+    assert.equal(await thawedDemo.locator('[data-testid="thaw"]').count(), 0);
+    const control = rows.filter({ hasText: "Multi-analyte control, normal (lyophilised)", has: page.locator('[data-testid="freeze-aliquots"]') }).first();
+    await control.locator('[data-testid="freeze-aliquots"]').click();
+    await control.locator('[data-testid="aliquot-count"]').fill("2,5");
+    await control.locator('[data-testid="aliquot-frozen-days"]').fill("30");
+    await control.locator('[data-testid="aliquot-thaw-hours"]').fill("4");
+    await control.locator('[data-testid="make-aliquots"]').click();
+    assert.match(await control.locator('[data-testid="aliquot-message"]').innerText(), /aliquots: a whole number from 1 to 200/);
+    await control.locator('[data-testid="aliquot-count"]').fill("2");
+    await control.locator('[data-testid="make-aliquots"]').click();
+    await waitSaved(page);
+    const first = () => rows.filter({ hasText: "Multi-analyte control, normal (lyophilised), frozen aliquot 1/2" }).first();
+    await first().waitFor();
+    assert.match(await first().innerText(), /stability while frozen\tusable/);
+    assert.equal(await rows.filter({ hasText: ", frozen aliquot 2/2" }).count() >= 1, true);
+    await first().locator('[data-testid="thaw"]').click();
+    await waitSaved(page);
+    await page.waitForFunction(() => [...document.querySelectorAll('[data-testid="material-row"]')]
+      .some((r) => /frozen aliquot 1\/2\tDQ-N-2611.*stability after thawing/.test(r.innerText)));
+    assert.equal(await first().locator('[data-testid="thaw"]').count(), 0, "thawed once: no second thaw");
+    assert.equal(await rows.filter({ hasText: ", frozen aliquot 2/2" }).first().locator('[data-testid="thaw"]').count(), 1);
+    assert.ok((await rows.count()) > before);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
