@@ -124,6 +124,30 @@ pub fn clock_doubt(
     }
 }
 
+/// Each absorbance standard whose newest photometer check failed: the standard and that
+/// entry. A later pass on the same standard clears it.
+pub fn failed_photometer_checks(
+    lab: &Lab,
+) -> Vec<(
+    &crate::lab::AbsorbanceStandard,
+    &crate::lab::InstrumentEntry,
+)> {
+    let mut out = Vec::new();
+    for s in &lab.absorbance_standards {
+        let newest = lab
+            .instrument_log
+            .iter()
+            .filter(|e| e.standard.as_deref() == Some(s.name.as_str()))
+            .max_by_key(|e| e.at);
+        if let Some(e) = newest {
+            if lab.photometer_verdict(e).is_some_and(|(_, ok)| !ok) {
+                out.push((s, e));
+            }
+        }
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -217,5 +241,33 @@ mod tests {
             clock_doubt(now, None, Some(at("2026-11-26T08:01:00Z"))),
             None
         );
+    }
+
+    /// A reading outside its standard's tolerance stays on the board until a later
+    /// reading of the same standard passes.
+    #[test]
+    fn a_failed_photometer_check_shows_until_the_standard_passes() {
+        use crate::lab::{InstrumentEntry, InstrumentEvent};
+        let mut lab = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
+        lab.absorbance_standards = crate::lab::example_absorbance_standards();
+        let now = lab.newest_time().unwrap();
+        let check = |k: u8, minutes: i64, v: f64| InstrumentEntry {
+            meta: RecordMeta::new([k; 16], now, "AK"),
+            at: now + chrono::Duration::minutes(minutes),
+            event: InstrumentEvent::PhotometerCheck,
+            value: Some(v),
+            note: String::new(),
+            standard: Some("grey filter, low".into()),
+        };
+        assert!(failed_photometer_checks(&lab).is_empty());
+        lab.instrument_log.push(check(40, 1, 0.530));
+        let failed = failed_photometer_checks(&lab);
+        assert_eq!(failed.len(), 1);
+        assert_eq!(
+            (failed[0].0.name.as_str(), failed[0].1.value),
+            ("grey filter, low", Some(0.530))
+        );
+        lab.instrument_log.push(check(41, 2, 0.503));
+        assert!(failed_photometer_checks(&lab).is_empty());
     }
 }

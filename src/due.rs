@@ -305,6 +305,7 @@ mod tests {
             event: InstrumentEvent::LampChange,
             value: None,
             note: String::new(),
+            standard: None,
         });
         let alt = line(&today(&lab, now, &Utc), "ALT", Task::Calibration).clone();
         assert_eq!(alt.state, State::Triggered);

@@ -222,6 +222,74 @@ impl MaterialForm {
     }
 }
 
+/// The lab's absorbance standards, one per line: "name; nm; expected; tolerance"
+/// (blank lines skipped). Names are unique; each number is checked for its range.
+pub fn absorbance_standards(text: &str) -> Result<Vec<crate::lab::AbsorbanceStandard>, String> {
+    use crate::engine::plausible::WAVELENGTH_NM;
+    let mut out: Vec<crate::lab::AbsorbanceStandard> = Vec::new();
+    for (i, line) in text
+        .lines()
+        .enumerate()
+        .filter(|(_, l)| !l.trim().is_empty())
+    {
+        let at = format!("standard line {}", i + 1);
+        let f: Vec<&str> = line.split(';').map(str::trim).collect();
+        let [name, nm, expected, tolerance] = f[..] else {
+            return Err(format!(
+                "{at}: write name; nm; expected absorbance; tolerance, e.g. grey filter; 340; 0.500; 0.010"
+            ));
+        };
+        if name.is_empty() || name.chars().count() > 60 {
+            return Err(format!(
+                "{at}: give the standard a name of up to 60 characters"
+            ));
+        }
+        if out.iter().any(|s| s.name == name) {
+            return Err(format!(
+                "{at}: {name:?} is listed twice; give each standard its own name"
+            ));
+        }
+        let one = |t: &str, what: &str| -> Result<f64, String> {
+            match numbers(t, &format!("{at}: {what}"))?.as_slice() {
+                [x] => Ok(*x),
+                _ => Err(format!("{at}: {what}: one number")),
+            }
+        };
+        let wavelength_nm =
+            WAVELENGTH_NM.check(&format!("{at}: wavelength"), one(nm, "wavelength")?)?;
+        let expected = one(expected, "expected absorbance")?;
+        if !(-0.5..=4.0).contains(&expected) {
+            return Err(format!("{at}: expected absorbance: between -0.5 and 4"));
+        }
+        let tolerance = one(tolerance, "tolerance")?;
+        if !(tolerance > 0.0 && tolerance <= 1.0) {
+            return Err(format!(
+                "{at}: tolerance: above 0 and at most 1 absorbance unit"
+            ));
+        }
+        out.push(crate::lab::AbsorbanceStandard {
+            name: name.to_string(),
+            wavelength_nm,
+            expected,
+            tolerance,
+        });
+    }
+    Ok(out)
+}
+
+/// The standards as the set-up field shows them (what [`absorbance_standards`] reads).
+pub fn absorbance_standards_text(list: &[crate::lab::AbsorbanceStandard]) -> String {
+    list.iter()
+        .map(|s| {
+            format!(
+                "{}; {}; {:.3}; {:.3}",
+                s.name, s.wavelength_nm, s.expected, s.tolerance
+            )
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
 /// What the set-up form for a new test holds, as typed.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct TestForm {
@@ -546,5 +614,26 @@ mod form_tests {
         };
         let l = f.into_level("t", meta()).unwrap();
         assert_eq!((l.mean, l.sd), (95.5, 2.8));
+    }
+
+    /// The example set reads back from its own text; a reading passes within the
+    /// tolerance and fails outside it; bad lines name what to write.
+    #[test]
+    fn absorbance_standards_are_read_and_judged() {
+        let example = crate::lab::example_absorbance_standards();
+        let text = absorbance_standards_text(&example);
+        assert_eq!(absorbance_standards(&text).unwrap(), example);
+        let grey = &example[1];
+        assert!(grey.passes(0.509) && grey.passes(0.49) && !grey.passes(0.512));
+        assert!(example[0].passes(-0.0004));
+        for (bad, says) in [
+            ("filter; 340; 0,5", "write name; nm"),
+            ("filter; 90; 0.5; 0.01", "wavelength"),
+            ("filter; 340; 0.5; 0", "tolerance"),
+            ("a; 340; 0.5; 0.01\na; 505; 1; 0.02", "listed twice"),
+        ] {
+            let e = absorbance_standards(bad).unwrap_err();
+            assert!(e.contains(says), "{bad}: {e}");
+        }
     }
 }

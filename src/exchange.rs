@@ -238,7 +238,7 @@ fn older_export(
     top: &serde_json::Map<String, serde_json::Value>,
     text: &str,
 ) -> Result<RecordsFile, Refused> {
-    const FIELDS: [&str; 12] = [
+    const FIELDS: [&str; 13] = [
         "schema_version",
         "lab_name",
         "demo",
@@ -251,6 +251,7 @@ fn older_export(
         "patient_results",
         "corrective_actions",
         "temperature_limits",
+        "absorbance_standards",
     ];
     let required = [
         "schema_version",

@@ -206,6 +206,8 @@ pub struct Settings {
     #[serde(default)]
     pub demo: bool,
     pub temperature_limits: Limits,
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub absorbance_standards: Vec<crate::lab::AbsorbanceStandard>,
 }
 
 impl Settings {
@@ -214,6 +216,7 @@ impl Settings {
             lab_name: lab.lab_name.clone(),
             demo: lab.demo,
             temperature_limits: lab.temperature_limits,
+            absorbance_standards: lab.absorbance_standards.clone(),
         }
     }
 }
@@ -775,6 +778,7 @@ fn apply(
             lab.lab_name = s.lab_name;
             lab.demo = s.demo;
             lab.temperature_limits = s.temperature_limits;
+            lab.absorbance_standards = s.absorbance_standards;
         }
         Kind::Test => put(&mut lab.tests, e.action, &e.id, v, e.seq)?,
         Kind::ControlLevel => put(&mut lab.control_levels, e.action, &e.id, v, e.seq)?,

@@ -507,6 +507,42 @@ pub struct InstrumentEntry {
     pub value: Option<f64>,
     #[serde(default)]
     pub note: String,
+    /// For a photometer check: the absorbance standard read (its name).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub standard: Option<String>,
+}
+
+/// A filter or solution with a certified absorbance that the photometer is checked
+/// against: a reading within `expected ± tolerance` passes.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AbsorbanceStandard {
+    pub name: String,
+    pub wavelength_nm: f64,
+    pub expected: f64,
+    pub tolerance: f64,
+}
+
+impl AbsorbanceStandard {
+    /// Whether a reading is within the tolerance (a hair of rounding allowed).
+    pub fn passes(&self, reading: f64) -> bool {
+        (reading - self.expected).abs() <= self.tolerance + 1e-9
+    }
+}
+
+/// An example set to start from. From memory, not from any certificate: every value
+/// must be replaced by the lab's own certificate before use.
+pub fn example_absorbance_standards() -> Vec<AbsorbanceStandard> {
+    let s = |name: &str, wavelength_nm, expected, tolerance| AbsorbanceStandard {
+        name: name.to_string(),
+        wavelength_nm,
+        expected,
+        tolerance,
+    };
+    vec![
+        s("water blank", 340.0, 0.0, 0.005),
+        s("grey filter, low", 340.0, 0.5, 0.01),
+        s("grey filter, high", 505.0, 1.0, 0.02),
+    ]
 }
 
 /// A patient sample's result as worked out at the bench and recorded: the signal, the
@@ -564,6 +600,9 @@ pub struct Lab {
     pub corrective_actions: Vec<CorrectiveAction>,
     #[serde(default = "default_temperature_limits")]
     pub temperature_limits: Limits,
+    /// The photometer's absorbance standards (the lab's certificates).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub absorbance_standards: Vec<AbsorbanceStandard>,
 }
 
 impl Lab {
@@ -582,6 +621,7 @@ impl Lab {
             patient_results: Vec::new(),
             corrective_actions: Vec::new(),
             temperature_limits: default_temperature_limits(),
+            absorbance_standards: Vec::new(),
         }
     }
 
@@ -697,6 +737,17 @@ impl Lab {
                     .flat_map(|m| m.stability.recorded_times()),
             );
         metas.chain(events).max()
+    }
+
+    /// A photometer check against a standard the lab has: the standard, and whether
+    /// the reading passed. `None` for other entries, or a standard no longer listed.
+    pub fn photometer_verdict(&self, e: &InstrumentEntry) -> Option<(&AbsorbanceStandard, bool)> {
+        if e.event != InstrumentEvent::PhotometerCheck {
+            return None;
+        }
+        let name = e.standard.as_deref()?;
+        let standard = self.absorbance_standards.iter().find(|s| s.name == name)?;
+        Some((standard, standard.passes(e.value?)))
     }
 
     /// How many QC results the lab holds (one per control level measured in a run).

@@ -782,6 +782,29 @@ fn TodayBoard(
                             format!("Reaction temperature today: {v} °C, within the limits.")
                         }
                     });
+                let photometer: Vec<String> = crate::board::failed_photometer_checks(l)
+                    .into_iter()
+                    .map(|(s, e)| {
+                        format!(
+                            "Photometer check FAILED on {} ({} nm) at {}: read {}, expected {:.3} ± {:.3}. \
+                             Do not run tests at this wavelength until it is corrected and the check passes (Instrument log).",
+                            s.name,
+                            s.wavelength_nm,
+                            e.at.with_timezone(&Local).format("%Y-%m-%d %H:%M"),
+                            e.value.map_or(String::new(), crate::engine::readings::absorbance_text),
+                            s.expected,
+                            s.tolerance
+                        )
+                    })
+                    .collect();
+                let photometer_view = photometer
+                    .into_iter()
+                    .map(|line| view! {
+                        <p class="problem" data-testid="photometer-failed">
+                            <button class="link" on:click=move |_| go.run(View::Instrument)>{line}</button>
+                        </p>
+                    })
+                    .collect_view();
                 let print = |_| {
                     if let Some(w) = web_sys::window() {
                         let _ = w.print();
@@ -865,6 +888,7 @@ fn TodayBoard(
                     <section class="card wide">
                         <h3>{format!("Tests — {}", today.format("%Y-%m-%d"))}</h3>
                         <p data-testid="today-temperature">{temperature}</p>
+                        {photometer_view}
                         <table data-testid="today-tests">
                             <thead><tr><th>"Test"</th><th>"Calibration in use"</th><th>"Latest QC run"</th><th>"Before patient samples"</th></tr></thead>
                             <tbody>{tests}</tbody>

@@ -4,7 +4,7 @@
 use leptos::prelude::*;
 
 use crate::engine::calibration::ModelKind;
-use crate::entry::{LevelForm, TestForm};
+use crate::entry::{self, LevelForm, TestForm};
 use crate::lab::Lab;
 
 fn meta_or_message(technician: ReadSignal<String>) -> Result<crate::lab::RecordMeta, String> {
@@ -78,6 +78,7 @@ pub fn SetupView(
             <ul class="setup-tests">{tests}</ul>
             <NewTest lab=lab save=save technician=technician />
         </section>
+        <Standards lab=lab save=save />
         <section class="card">
             <h3>"Demo lab"</h3>
             <p>
@@ -86,6 +87,52 @@ pub fn SetupView(
                  \"Back to my lab\" returns to them unchanged. Loading it again starts it afresh."
             </p>
             <button data-testid="load-demo" on:click=move |_| load_demo.run(())>"Load demo lab"</button>
+        </section>
+    }
+}
+
+/// The photometer's absorbance standards, as the lab's certificates give them.
+#[component]
+fn Standards(lab: ReadSignal<Option<Lab>>, save: Callback<Lab>) -> impl IntoView {
+    let stored = move || {
+        lab.with(|l| {
+            l.as_ref()
+                .map(|l| entry::absorbance_standards_text(&l.absorbance_standards))
+                .unwrap_or_default()
+        })
+    };
+    let (text, set_text) = signal(None::<String>);
+    let (message, set_message) = signal(None::<String>);
+    let shown = move || text.get().unwrap_or_else(stored);
+    let save_standards = move |_| match entry::absorbance_standards(&shown()) {
+        Ok(list) => {
+            let Some(mut changed) = lab.get_untracked() else {
+                return set_message.set(Some("set up or load a lab first".into()));
+            };
+            changed.absorbance_standards = list;
+            save.run(changed);
+            set_text.set(None);
+            set_message.set(Some("standards saved".into()));
+        }
+        Err(e) => set_message.set(Some(e)),
+    };
+    view! {
+        <section class="card">
+            <h3>"Photometer check: absorbance standards"</h3>
+            <p class="muted">"One per line: name; nm; expected absorbance; tolerance. \
+                A reading outside expected ± tolerance fails the check and shows on the board."</p>
+            <textarea rows="4" cols="48" data-testid="standards-text"
+                prop:value=shown
+                on:input=move |ev| set_text.set(Some(event_target_value(&ev)))></textarea>
+            <p>
+                <button data-testid="standards-example" on:click=move |_| {
+                    set_text.set(Some(entry::absorbance_standards_text(&crate::lab::example_absorbance_standards())));
+                    set_message.set(Some("Example values, from memory — verify against your certificate and replace them before saving.".into()));
+                }>"Fill in an example set"</button>
+                " "
+                <button data-testid="save-standards" on:click=save_standards>"Save standards"</button>
+            </p>
+            {move || message.get().map(|m| view! { <p class="outcome" data-testid="standards-message">{m}</p> })}
         </section>
     }
 }
