@@ -106,6 +106,8 @@ where
                     format!("{:.3}", qc::z_score(*v, target)),
                     verdict.decision.code().to_string(),
                     broken.join(" "),
+                    run.after_action.clone().unwrap_or_default(),
+                    run.acknowledged.join("; "),
                     run.meta.by.clone(),
                     run.meta.id.clone(),
                 ]);
@@ -127,6 +129,8 @@ where
             "z",
             "decision",
             "rules_broken",
+            "after_corrective_action",
+            "acknowledged_warnings",
             "by",
             "record_id",
         ],

@@ -85,7 +85,7 @@ test("the day's records of the demo's last day: one JSON that checks, and a CSV 
     const byName = Object.fromEntries(csvs.map((c) => [c.name.replace(/^cuvette-demo-district-hospital-lab-invented-data-|-2026-11-27\.csv$/g, ""), c.text]));
     assert.deepEqual(Object.keys(byName).sort(), ["calibrations", "corrective-actions", "instrument-log", "materials", "patient-results", "qc-results", "trail"]);
     const qc = byName["qc-results"].trim().split("\r\n");
-    assert.equal(qc[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,by,record_id");
+    assert.equal(qc[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,after_corrective_action,acknowledged_warnings,by,record_id");
     assert.ok(qc.length > 1);
     assert.ok(qc.slice(1).every((l) => /,2026-11-27T\d\d:\d\d:\d\d\+03:00,/.test(l) && /,(accept|warning|reject),/.test(l)), qc.join("\n"));
     assert.ok(qc.some((l) => /^GLU,.*,reject,/.test(l)), `the demo's glucose rejection is in the day's QC:\n${qc.join("\n")}`);

@@ -209,10 +209,12 @@ test("QC results and calibrations export as CSV for a spreadsheet", async () => 
     const path = join(mkdtempSync(join(tmpdir(), "csv-")), "qc.csv");
     await download.saveAs(path);
     const lines = readFileSync(path, "utf8").trim().split("\r\n");
-    assert.equal(lines[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,by,record_id");
+    assert.equal(lines[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,after_corrective_action,acknowledged_warnings,by,record_id");
     // 3 demo tests × 26 runs × 2 levels, one creatinine level not run once.
     assert.equal(lines.length - 1, 155);
     assert.ok(lines.slice(1).every((l) => /,(accept|warning|reject),/.test(l)));
+    // The demo's re-runs name the corrective action they follow.
+    assert.ok(lines.filter((l) => /,[0-9a-f-]{36},,[A-Z]{2},[0-9a-f-]{36}$/.test(l)).length >= 4);
     assert.deepEqual(problems, []);
   } finally {
     await context.close();
