@@ -73,6 +73,8 @@ test("a calibration with a calibrator past its stability is refused until acknow
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    // The demo is opened asynchronously: wait for it, then for its records to be saved.
+    await byTestId(page, "demo-banner").waitFor();
     await waitSaved(page);
   } finally {
     await context.close();

@@ -72,6 +72,8 @@ test("the board doubts a clock that jumped a weekend or went back behind the rec
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    // The demo is opened asynchronously: wait for it, then for its records to be saved.
+    await byTestId(page, "demo-banner").waitFor();
     await waitSaved(page);
     await byTestId(page, "nav-today").click();
     assert.equal(await byTestId(page, "clock-doubt").count(), 0, "no doubt on a steady clock");

@@ -12,6 +12,7 @@ test("the demo's board says what is due this morning and why, and a calibration 
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await waitSaved(page);
     await byTestId(page, "nav-today").click();
     const lines = () => byTestId(page, "due-line").allInnerTexts();

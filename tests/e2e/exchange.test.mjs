@@ -24,6 +24,7 @@ async function initials(page, who) {
 async function loadDemo(page) {
   await byTestId(page, "nav-setup").click();
   await byTestId(page, "load-demo").click();
+  await byTestId(page, "demo-banner").waitFor();
   await waitSaved(page);
 }
 

@@ -154,6 +154,7 @@ test("the QC runs view shows the chosen month only", async () => {
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await waitSaved(page);
     await byTestId(page, "nav-runs").click();
     const card = byTestId(page, "runs-GLU");
