@@ -222,6 +222,24 @@ impl MaterialForm {
     }
 }
 
+/// Frozen aliquots to make, as typed: how many (1–200), days stable frozen, hours stable
+/// after thawing → (count, frozen hours, after-thaw hours); the stability engine checks
+/// the hours' range.
+pub fn aliquot_plan(
+    count: &str,
+    frozen_days: &str,
+    thaw_hours: &str,
+) -> Result<(usize, f64, f64), String> {
+    use crate::engine::plausible::ALIQUOTS_AT_ONCE;
+    let n = whole_number(count, "aliquots", ALIQUOTS_AT_ONCE)?
+        .ok_or("aliquots: how many to freeze, e.g. 10")?;
+    let days = one_number(frozen_days, "days frozen")?
+        .ok_or("days frozen: the stability while frozen, from the insert")?;
+    let hours = one_number(thaw_hours, "hours after thawing")?
+        .ok_or("hours after thawing: the stability once thawed, from the insert")?;
+    Ok((n as usize, days * 24.0, hours))
+}
+
 /// The lab's absorbance standards, one per line: "name; nm; expected; tolerance"
 /// (blank lines skipped). Names are unique; each number is checked for its range.
 pub fn absorbance_standards(text: &str) -> Result<Vec<crate::lab::AbsorbanceStandard>, String> {
@@ -250,10 +268,7 @@ pub fn absorbance_standards(text: &str) -> Result<Vec<crate::lab::AbsorbanceStan
             ));
         }
         let one = |t: &str, what: &str| -> Result<f64, String> {
-            match numbers(t, &format!("{at}: {what}"))?.as_slice() {
-                [x] => Ok(*x),
-                _ => Err(format!("{at}: {what}: one number")),
-            }
+            one_number(t, &format!("{at}: {what}"))?.ok_or(format!("{at}: {what}: give a number"))
         };
         let wavelength_nm =
             WAVELENGTH_NM.check(&format!("{at}: wavelength"), one(nm, "wavelength")?)?;
@@ -321,7 +336,10 @@ fn whole_number(
         Some(v) => {
             range.check(what, v)?;
             if v.fract() != 0.0 {
-                return Err(format!("{what}: a whole number, e.g. 7"));
+                return Err(format!(
+                    "{what}: a whole number from {} to {}",
+                    range.low, range.high
+                ));
             }
             Ok(Some(v as u32))
         }

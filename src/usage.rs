@@ -75,6 +75,14 @@ where
     out
 }
 
+/// Why a save is refused: warnings the technologist has not acknowledged.
+pub fn refusal(warnings: &[String], acknowledged: bool) -> Option<&'static str> {
+    (!warnings.is_empty() && !acknowledged).then_some(
+        "a material chosen is past its stability: read the warning and tick the box, \
+         or choose another material",
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

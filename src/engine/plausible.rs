@@ -105,10 +105,12 @@ pub const WAVELENGTH_NM: Range = Range::closed(200.0, 1_100.0, "nm");
 pub const ALLOWABLE_ERROR_PCT: Range = Range::above(0.0, 100.0, "%");
 /// A bias, in percent.
 pub const BIAS_PCT: Range = Range::closed(-100.0, 100.0, "%");
-/// How long a calibration stays valid, in days (up to ten years).
+/// How long a calibration stays valid, in days (up to ten years; our bound).
 pub const CALIBRATION_VALID_DAYS: Range = Range::closed(1.0, 3_650.0, "days");
-/// QC runs a day's schedule asks for (one an hour at most).
+/// QC runs a day's schedule asks for (one an hour at most; our bound).
 pub const QC_RUNS_PER_DAY: Range = Range::closed(1.0, 24.0, "runs");
+/// Frozen aliquots made at one time (our bound).
+pub const ALIQUOTS_AT_ONCE: Range = Range::closed(1.0, 200.0, "aliquots");
 /// A temperature a bench check can read.
 pub const TEMPERATURE_C: Range = Range::closed(-90.0, 150.0, "°C");
 

@@ -108,7 +108,8 @@ impl Rule {
     /// Whether the rule looks for a systematic error (results on one side of the mean:
     /// 2-2s, 2of3-2s, 4-1s, 3-1s, the n-x rules) rather than a random one (a single
     /// result beyond a limit, R-4s), as the published multirule interpretation reads
-    /// them; a rejection by such a rule points to the calibration or the reagent.
+    /// them (from memory of that literature); a rejection by such a rule points to the
+    /// calibration or the reagent.
     pub fn detects_systematic_error(self) -> bool {
         match self.pattern() {
             Pattern::Beyond { count, .. } => count >= 2,

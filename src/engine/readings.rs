@@ -407,15 +407,27 @@ pub fn flag(value: f64, reference: Limits, critical: Limits) -> Option<ResultFla
     }
 }
 
-/// An absorbance as the photometer shows it, to 4 decimals; a reading that rounds to
-/// zero is "0.0000", never "-0.0000" or "-0" (a water blank of −0.00004 is zero).
-pub fn absorbance_text(a: f64) -> String {
-    let s = format!("{a:.4}");
-    if s == "-0.0000" {
-        "0.0000".into()
+/// `x` to `decimals` places (with a sign when `signed`); a value that rounds to zero is
+/// shown as zero, never "-0.0" (a water blank of −0.00004 is zero, a z of −0.04 is 0).
+pub fn fixed(x: f64, decimals: usize, signed: bool) -> String {
+    let x = if format!("{:.*}", decimals, x.abs())
+        .bytes()
+        .all(|b| b == b'0' || b == b'.')
+    {
+        0.0
     } else {
-        s
+        x
+    };
+    if signed {
+        format!("{x:+.decimals$}")
+    } else {
+        format!("{x:.decimals$}")
     }
+}
+
+/// An absorbance as the photometer shows it, to 4 decimals.
+pub fn absorbance_text(a: f64) -> String {
+    fixed(a, 4, false)
 }
 
 #[cfg(test)]
@@ -531,5 +543,8 @@ mod tests {
         assert_eq!(absorbance_text(-0.00004), "0.0000");
         assert_eq!(absorbance_text(-0.0004), "-0.0004");
         assert_eq!(absorbance_text(0.5124), "0.5124");
+        assert_eq!(fixed(-0.04, 1, true), "+0.0");
+        assert_eq!(fixed(-1.26, 1, true), "-1.3");
+        assert_eq!(fixed(1.25, 1, true), "+1.2");
     }
 }

@@ -325,7 +325,7 @@ pub fn aliquots(
     after_thaw_hours: f64,
     at: DateTime<Utc>,
 ) -> Result<Vec<Material>, StabilityError> {
-    if !(1..=200).contains(&count) {
+    if !super::plausible::ALIQUOTS_AT_ONCE.contains(count as f64) {
         return Err(StabilityError(
             "aliquots: make between 1 and 200 at a time".into(),
         ));
@@ -733,9 +733,8 @@ mod tests {
         assert!(e.0.contains("in_use_hours"), "{}", e.0);
     }
 
-    /// Thaw once (common practice, and what the maker's inserts for frozen aliquots
-    /// say): the first thaw starts the after-thaw stability; a second is refused, as is
-    /// freezing an aliquot again.
+    /// Thaw once (common practice; the maker's insert decides): the first thaw starts
+    /// the after-thaw stability; a second is refused, as is freezing an aliquot again.
     #[test]
     fn an_aliquot_is_thawed_once_and_never_refrozen() {
         let source = Material {

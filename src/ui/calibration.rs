@@ -245,12 +245,8 @@ fn NewCalibration(
         };
         let used = chosen.get_untracked();
         let warned = crate::usage::warnings(&lab, &used, &test_for_check, now, &chrono::Local);
-        if !warned.is_empty() && !acknowledged.get_untracked() {
-            return set_message.set(Some(
-                "a material chosen is past its stability: read the warning and tick the box, \
-                 or choose another material"
-                    .into(),
-            ));
+        if let Some(refused) = crate::usage::refusal(&warned, acknowledged.get_untracked()) {
+            return set_message.set(Some(refused.into()));
         }
         let record = CalibrationRecord {
             meta,

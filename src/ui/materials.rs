@@ -168,21 +168,11 @@ fn FreezeAliquots(id: String, technician: ReadSignal<String>) -> impl IntoView {
     let (thaw_hours, set_thaw_hours) = signal(String::new());
     let (message, set_message) = signal(None::<String>);
     let make = move |_| {
-        let one = |text: String, what: &str| -> Result<f64, String> {
-            match crate::entry::numbers(&text, what)?.as_slice() {
-                [x] => Ok(*x),
-                _ => Err(format!("{what}: one number")),
-            }
-        };
-        let parsed = (|| {
-            let n = one(count.get_untracked(), "aliquots")?;
-            if n.fract() != 0.0 || !(1.0..=200.0).contains(&n) {
-                return Err("aliquots: a whole number from 1 to 200".to_string());
-            }
-            let days = one(frozen_days.get_untracked(), "days frozen")?;
-            let hours = one(thaw_hours.get_untracked(), "hours after thawing")?;
-            Ok((n as usize, days * 24.0, hours))
-        })();
+        let parsed = crate::entry::aliquot_plan(
+            &count.get_untracked(),
+            &frozen_days.get_untracked(),
+            &thaw_hours.get_untracked(),
+        );
         let (n, frozen_hours, after_thaw_hours) = match parsed {
             Ok(p) => p,
             Err(e) => return set_message.set(Some(e)),

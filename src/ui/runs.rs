@@ -223,21 +223,14 @@ fn results_text(values: &[Option<f64>], targets: &[qc::LevelTarget]) -> String {
         .iter()
         .zip(targets)
         .map(|(v, t)| match v {
-            Some(v) => format!("{v} ({} SD)", signed_1(qc::z_score(*v, *t))),
+            Some(v) => format!(
+                "{v} ({} SD)",
+                crate::engine::readings::fixed(qc::z_score(*v, *t), 1, true)
+            ),
             None => "not run".into(),
         })
         .collect::<Vec<_>>()
         .join(" · ")
-}
-
-/// "+1.3", "−0.4", and "+0.0" rather than "-0.0".
-fn signed_1(x: f64) -> String {
-    let s = format!("{x:+.1}");
-    if s == "-0.0" {
-        "+0.0".into()
-    } else {
-        s
-    }
 }
 
 fn verdict_view(verdict: &RunVerdict, names: &[String], run_dates: &[String]) -> impl IntoView {
@@ -331,12 +324,8 @@ fn NewRun(
         };
         let used = chosen.get_untracked();
         let warned = crate::usage::warnings(&lab, &used, &test_for_check, now, &Local);
-        if !warned.is_empty() && !acknowledged.get_untracked() {
-            return set_message.set(Some(
-                "a material chosen is past its stability: read the warning and tick the box, \
-                 or choose another material"
-                    .into(),
-            ));
+        if let Some(refused) = crate::usage::refusal(&warned, acknowledged.get_untracked()) {
+            return set_message.set(Some(refused.into()));
         }
         let mut changed = lab.clone();
         changed.control_runs.push(ControlRun {
