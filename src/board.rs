@@ -6,10 +6,11 @@
 
 use chrono::{DateTime, TimeZone, Utc};
 
-use crate::engine::qc::{self, Decision};
+use crate::engine::qc::Decision;
 use crate::engine::qcstats::{self, ControlResult, MIN_RESULTS_FOR_LAB_TARGET};
 use crate::engine::stability::{self, WarningWindow};
 use crate::lab::Lab;
+use crate::verdicts::LabVerdicts;
 
 /// One control lot changeover in progress.
 #[derive(Debug, Clone, PartialEq)]
@@ -28,11 +29,16 @@ pub struct Crossover {
 
 /// Every level name of a test with more than one lot: the newest-made lot against the
 /// one before it.
-pub fn crossovers<Tz: TimeZone>(lab: &Lab, now: DateTime<Utc>, tz: &Tz) -> Vec<Crossover> {
+pub fn crossovers<Tz: TimeZone>(
+    lab: &Lab,
+    judged: &LabVerdicts,
+    now: DateTime<Utc>,
+    tz: &Tz,
+) -> Vec<Crossover> {
     let mut out = Vec::new();
     for t in &lab.tests {
         let h = lab.control_history(&t.meta.id);
-        let Ok(verdicts) = qc::evaluate(&h.targets, &h.values, &t.qc_rules) else {
+        let Ok(verdicts) = judged.verdicts(&t.meta.id) else {
             continue;
         };
         let mut names: Vec<&str> = h.levels.iter().map(|l| l.name.as_str()).collect();
@@ -51,7 +57,7 @@ pub fn crossovers<Tz: TimeZone>(lab: &Lab, now: DateTime<Utc>, tz: &Tz) -> Vec<C
                 .runs
                 .iter()
                 .zip(&h.values)
-                .zip(&verdicts)
+                .zip(verdicts)
                 .filter_map(|((run, v), verdict)| {
                     v[new].map(|value| ControlResult {
                         at: run.run_at,
@@ -159,7 +165,7 @@ mod tests {
     fn a_new_lot_counts_its_results_toward_its_own_target() {
         let mut lab = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
         let now = lab.newest_time().unwrap();
-        assert!(crossovers(&lab, now, &Utc).is_empty());
+        assert!(crossovers(&lab, &LabVerdicts::of(&lab), now, &Utc).is_empty());
         let old = lab.control_levels[0].clone();
         let new = ControlLevel {
             meta: RecordMeta::new([9; 16], now, "AK"),
@@ -180,7 +186,7 @@ mod tests {
                 acknowledged: Vec::new(),
             });
         }
-        let c = crossovers(&lab, now, &Utc);
+        let c = crossovers(&lab, &LabVerdicts::of(&lab), now, &Utc);
         assert_eq!(c.len(), 1);
         assert_eq!((c[0].new_results, c[0].still_needed), (5, 15));
         assert_eq!(

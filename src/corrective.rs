@@ -2,12 +2,13 @@
 //! what was done, by whom, when) before the test's next run may be saved; that re-run
 //! names the action it follows. Patient results stay held until a re-run is accepted
 //! (today's gate reads the test's latest run). Plain Rust over the lab's records, judged
-//! by the one rule engine ([`crate::engine::qc::evaluate`]).
+//! by the one rule engine through the lab's shared verdicts ([`crate::verdicts`]).
 
 use chrono::{DateTime, Utc};
 
 use crate::engine::qc::{self, Decision};
 use crate::lab::{CorrectiveAction, Lab};
+use crate::verdicts::LabVerdicts;
 
 /// A rejected run with no corrective action recorded for it.
 #[derive(Debug, Clone, PartialEq)]
@@ -59,14 +60,13 @@ pub fn action_for<'a>(lab: &'a Lab, run_id: &str) -> Option<&'a CorrectiveAction
 
 /// Every rejected run of every test that has no corrective action, newest first.
 /// A test whose QC cannot be evaluated contributes nothing (its view says why).
-pub fn awaiting_action(lab: &Lab) -> Vec<Awaiting> {
+pub fn awaiting_action(lab: &Lab, judged: &LabVerdicts) -> Vec<Awaiting> {
     let mut out = Vec::new();
     for t in &lab.tests {
-        let h = lab.control_history(&t.meta.id);
-        let Ok(verdicts) = qc::evaluate(&h.targets, &h.values, &t.qc_rules) else {
+        let Ok(verdicts) = judged.verdicts(&t.meta.id) else {
             continue;
         };
-        for (run, verdict) in h.runs.iter().zip(&verdicts) {
+        for (run, verdict) in lab.runs_of(&t.meta.id).iter().zip(verdicts) {
             if verdict.decision != Decision::Reject || action_for(lab, &run.meta.id).is_some() {
                 continue;
             }
@@ -91,15 +91,11 @@ pub fn awaiting_action(lab: &Lab) -> Vec<Awaiting> {
 }
 
 /// May the test's next QC run be saved, and after which action?
-pub fn rerun_gate(lab: &Lab, test_id: &str) -> RerunGate {
-    let Some(t) = lab.tests.iter().find(|t| t.meta.id == test_id) else {
+pub fn rerun_gate(lab: &Lab, judged: &LabVerdicts, test_id: &str) -> RerunGate {
+    let Some(verdicts) = judged.test(test_id) else {
         return RerunGate::Free;
     };
-    let h = lab.control_history(test_id);
-    let Ok(verdicts) = qc::evaluate(&h.targets, &h.values, &t.qc_rules) else {
-        return RerunGate::Free;
-    };
-    match h.runs.last().zip(verdicts.last()) {
+    match lab.runs_of(test_id).last().zip(verdicts.newest()) {
         Some((run, v)) if v.decision == Decision::Reject => match action_for(lab, &run.meta.id) {
             Some(a) => RerunGate::After {
                 action_id: a.meta.id.clone(),
@@ -141,11 +137,11 @@ mod tests {
         let mut lab = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
         let now = lab.newest_time().unwrap() + Duration::hours(1);
         let test_id = lab.tests[0].meta.id.clone();
-        let before = awaiting_action(&lab).len();
+        let before = awaiting_action(&lab, &LabVerdicts::of(&lab)).len();
         let bad = run(&lab, 101, now, 3.5);
         let bad_id = bad.meta.id.clone();
         lab.control_runs.push(bad);
-        let gate = rerun_gate(&lab, &test_id);
+        let gate = rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id);
         assert_eq!(
             gate,
             RerunGate::NeedsAction {
@@ -154,7 +150,7 @@ mod tests {
             }
         );
         assert!(gate.refusal().unwrap().contains("corrective action"));
-        let waiting = awaiting_action(&lab);
+        let waiting = awaiting_action(&lab, &LabVerdicts::of(&lab));
         assert_eq!(waiting.len(), before + 1);
         assert_eq!(waiting[0].run_id, bad_id);
         assert!(waiting[0].rules.contains(&"1-3s"), "{:?}", waiting[0].rules);
@@ -169,13 +165,13 @@ mod tests {
         };
         let action_id = action.meta.id.clone();
         lab.corrective_actions.push(action);
-        assert_eq!(rerun_gate(&lab, &test_id), RerunGate::After { action_id });
-        assert_eq!(awaiting_action(&lab).len(), before);
+        assert_eq!(rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id), RerunGate::After { action_id });
+        assert_eq!(awaiting_action(&lab, &LabVerdicts::of(&lab)).len(), before);
 
         let mut good = run(&lab, 103, now + Duration::minutes(40), 0.0);
         good.after_action = Some(lab.corrective_actions[0].meta.id.clone());
         lab.control_runs.push(good);
-        assert_eq!(rerun_gate(&lab, &test_id), RerunGate::Free);
+        assert_eq!(rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id), RerunGate::Free);
     }
 
     /// A warning (1-2s alone: one result between 2 and 3 SD, no other rule broken, by
@@ -193,8 +189,8 @@ mod tests {
         let h = lab.control_history(&test_id);
         let v = qc::evaluate(&h.targets, &h.values, &lab.tests[0].qc_rules).unwrap();
         assert_eq!(v.last().unwrap().decision, Decision::Warning);
-        assert_eq!(rerun_gate(&lab, &test_id), RerunGate::Free);
-        assert!(awaiting_action(&lab).is_empty());
+        assert_eq!(rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id), RerunGate::Free);
+        assert!(awaiting_action(&lab, &LabVerdicts::of(&lab)).is_empty());
     }
 
     /// The demo's story: the earlier rejections (CREA, ALT, and glucose's 2-2s episode)
@@ -203,14 +199,14 @@ mod tests {
     #[test]
     fn the_demo_has_one_rejection_waiting_for_its_action() {
         let lab = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
-        let waiting = awaiting_action(&lab);
+        let waiting = awaiting_action(&lab, &LabVerdicts::of(&lab));
         assert_eq!(waiting.len(), 1, "{waiting:?}");
         assert_eq!(
             (waiting[0].test_code.as_str(), waiting[0].rules.clone()),
             ("GLU", vec!["4-1s"])
         );
         assert!(matches!(
-            rerun_gate(&lab, &waiting[0].test_id),
+            rerun_gate(&lab, &LabVerdicts::of(&lab), &waiting[0].test_id),
             RerunGate::NeedsAction { .. }
         ));
         assert_eq!(lab.corrective_actions.len(), 4);

@@ -8,6 +8,7 @@ use chrono::{DateTime, Duration, TimeZone, Utc};
 
 use crate::engine::qc::{self, Action, Decision};
 use crate::lab::{InstrumentEvent, Lab, TestSetup};
+use crate::verdicts::LabVerdicts;
 
 /// Where a line stands.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -55,23 +56,21 @@ where
 }
 
 /// Every test's QC and calibration lines for the day `now` falls on in `tz`.
-pub fn today<Tz: TimeZone>(lab: &Lab, now: DateTime<Utc>, tz: &Tz) -> Vec<Line>
+pub fn today<Tz: TimeZone>(
+    lab: &Lab,
+    judged: &LabVerdicts,
+    now: DateTime<Utc>,
+    tz: &Tz,
+) -> Vec<Line>
 where
     Tz::Offset: std::fmt::Display,
 {
     let mut out = Vec::new();
     for t in &lab.tests {
         let h = lab.control_history(&t.meta.id);
-        let verdicts = qc::evaluate(&h.targets, &h.values, &t.qc_rules).ok();
-        out.push(qc_line(t, &h.runs, verdicts.as_deref(), now, tz));
-        out.push(calibration_line(
-            lab,
-            t,
-            &h.runs,
-            verdicts.as_deref(),
-            now,
-            tz,
-        ));
+        let verdicts = judged.verdicts(&t.meta.id).ok();
+        out.push(qc_line(t, &h.runs, verdicts, now, tz));
+        out.push(calibration_line(lab, t, &h.runs, verdicts, now, tz));
     }
     out
 }
@@ -273,7 +272,7 @@ mod tests {
             .unwrap()
             .performed_at;
         let at = |d: Duration| made + d;
-        let state = |now| line(&today(&lab, now, &Utc), "CREA", Task::Calibration).state;
+        let state = |now| line(&today(&lab, &LabVerdicts::of(&lab), now, &Utc), "CREA", Task::Calibration).state;
         assert_eq!(
             state(at(Duration::days(6) - Duration::hours(12))),
             State::Done
@@ -283,7 +282,7 @@ mod tests {
             State::Due
         );
         assert_eq!(state(at(Duration::days(7))), State::Overdue);
-        let later = today(&lab, at(Duration::days(8)), &Utc);
+        let later = today(&lab, &LabVerdicts::of(&lab), at(Duration::days(8)), &Utc);
         let why = &line(&later, "CREA", Task::Calibration).why;
         assert!(why.contains("valid 7 days: expired"), "{why}");
     }
@@ -294,7 +293,7 @@ mod tests {
     fn a_lamp_change_or_a_systematic_rejection_triggers_recalibration() {
         let mut lab = demo();
         let now = lab.newest_time().unwrap();
-        let lines = today(&lab, now, &Utc);
+        let lines = today(&lab, &LabVerdicts::of(&lab), now, &Utc);
         let glu = line(&lines, "GLU", Task::Calibration);
         assert_eq!(glu.state, State::Triggered, "{}", glu.why);
         assert!(glu.why.contains("4-1s"), "{}", glu.why);
@@ -307,7 +306,7 @@ mod tests {
             note: String::new(),
             standard: None,
         });
-        let alt = line(&today(&lab, now, &Utc), "ALT", Task::Calibration).clone();
+        let alt = line(&today(&lab, &LabVerdicts::of(&lab), now, &Utc), "ALT", Task::Calibration).clone();
         assert_eq!(alt.state, State::Triggered);
         assert!(alt.why.starts_with("the lamp was changed"), "{}", alt.why);
     }
@@ -324,7 +323,7 @@ mod tests {
         let lab = demo();
         let now = lab.newest_time().unwrap();
         // ALT's 1-3s rejection of the demo came after its calibration: still done.
-        let alt = line(&today(&lab, now, &Utc), "ALT", Task::Calibration).clone();
+        let alt = line(&today(&lab, &LabVerdicts::of(&lab), now, &Utc), "ALT", Task::Calibration).clone();
         assert_eq!(alt.state, State::Done, "{}", alt.why);
     }
 
@@ -343,7 +342,7 @@ mod tests {
             .and_hms_opt(9, 0, 0)
             .unwrap()
             .and_utc();
-        let qc = |lab: &Lab| line(&today(lab, next, &Utc), "ALT", Task::Qc).clone();
+        let qc = |lab: &Lab| line(&today(lab, &LabVerdicts::of(lab), next, &Utc), "ALT", Task::Qc).clone();
         assert_eq!(qc(&lab).state, State::Due);
         assert!(qc(&lab).why.starts_with("0 of 2 today"), "{}", qc(&lab).why);
         let levels = lab.levels_of(&id);

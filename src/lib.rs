@@ -20,4 +20,5 @@ pub mod period;
 pub mod store;
 pub mod ui;
 pub mod usage;
+pub mod verdicts;
 pub mod verification;

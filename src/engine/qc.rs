@@ -398,55 +398,133 @@ pub fn evaluate_with(
     rules: &[RuleSetting],
     options: Options,
 ) -> Result<Vec<RunVerdict>, QcError> {
-    if targets.is_empty() {
-        return Err(QcError(
-            "levels: give at least one control level with its mean and SD".into(),
-        ));
-    }
-    for (l, t) in targets.iter().enumerate() {
-        if !(t.mean.is_finite() && t.sd.is_finite() && t.sd > 0.0) {
-            return Err(QcError(format!(
-                "levels[{l}]: the mean must be a number and the SD a number above 0 (SD is {})",
-                t.sd
-            )));
-        }
-    }
-    let mut obs: Vec<Obs> = Vec::new();
+    let mut judge = Judge::new(targets, rules, options)?;
+    let mut verdicts = Vec::with_capacity(runs.len());
     for (r, run) in runs.iter().enumerate() {
-        if run.len() != targets.len() {
-            return Err(QcError(format!(
-                "runs[{r}] has {} values for {} levels: give one value per level, null where a \
-                 level was not run",
-                run.len(),
-                targets.len()
-            )));
+        verdicts.push(judge.judge_named(run, || format!("runs[{r}]"))?);
+    }
+    Ok(verdicts)
+}
+
+/// The longest window any rule looks back over (12-x): no verdict depends on results
+/// further back, so the judge keeps only this many per level and in run order.
+pub const LONGEST_WINDOW: usize = 12;
+
+/// The rule windows of one test after its last judged run: enough to judge the next
+/// run without replaying the history. Judging a run costs the same at the first run
+/// and after ten years, and the state's size does not grow with the history.
+/// Cloning it is cheap, so a preview judges a copy.
+#[derive(Debug, Clone)]
+pub struct Judge {
+    targets: Vec<LevelTarget>,
+    rules: Vec<RuleSetting>,
+    options: Options,
+    /// Runs judged so far (the next run's index).
+    runs: usize,
+    /// The newest results of each level, oldest first.
+    per_level: Vec<Vec<Obs>>,
+    /// The newest results in run order, oldest first.
+    in_order: Vec<Obs>,
+    /// How many results each window keeps (`usize::MAX` keeps everything: the tests'
+    /// reading of the rules over the whole history, to compare with).
+    keep: usize,
+}
+
+impl Judge {
+    /// A judge with no runs yet; the targets are checked here.
+    pub fn new(
+        targets: &[LevelTarget],
+        rules: &[RuleSetting],
+        options: Options,
+    ) -> Result<Judge, QcError> {
+        if targets.is_empty() {
+            return Err(QcError(
+                "levels: give at least one control level with its mean and SD".into(),
+            ));
         }
-        for (l, v) in run.iter().enumerate() {
-            if let Some(v) = v {
-                if !v.is_finite() {
-                    return Err(QcError(format!("runs[{r}][{l}] is not a number")));
-                }
-                obs.push(Obs {
-                    run: r,
-                    level: l,
-                    z: z_score(*v, targets[l]),
-                });
+        for (l, t) in targets.iter().enumerate() {
+            if !(t.mean.is_finite() && t.sd.is_finite() && t.sd > 0.0) {
+                return Err(QcError(format!(
+                    "levels[{l}]: the mean must be a number and the SD a number above 0 (SD is {})",
+                    t.sd
+                )));
             }
         }
+        Ok(Judge {
+            targets: targets.to_vec(),
+            rules: rules.to_vec(),
+            options,
+            runs: 0,
+            per_level: vec![Vec::new(); targets.len()],
+            in_order: Vec::new(),
+            // In run order a window may end at any result of the newest run.
+            keep: LONGEST_WINDOW + targets.len(),
+        })
     }
-    let mut verdicts = Vec::with_capacity(runs.len());
-    let mut end = 0; // obs[..end] are the results up to and including run r
-    let mut first = 0; // obs[first..] count (moves on after a rejection when restarting)
-    for r in 0..runs.len() {
-        let start_of_run = end;
-        while end < obs.len() && obs[end].run == r {
-            end += 1;
+
+    /// A judge that keeps every result: the rules read over the whole history, to check
+    /// that keeping [`LONGEST_WINDOW`] results changes no verdict.
+    #[cfg(test)]
+    fn keeping_everything(mut self) -> Judge {
+        self.keep = usize::MAX;
+        self
+    }
+
+    /// How many runs have been judged.
+    pub fn runs_judged(&self) -> usize {
+        self.runs
+    }
+
+    /// Judge the next run (`run[l]` is level `l`'s value, `None` = not run) and take
+    /// it into the windows. A run that cannot be judged leaves the state as it was.
+    pub fn judge(&mut self, run: &[Option<f64>]) -> Result<RunVerdict, QcError> {
+        self.judge_named(run, || "the run".to_string())
+    }
+
+    /// [`Judge::judge`], naming the run as `name` in an error.
+    pub(crate) fn judge_named(
+        &mut self,
+        run: &[Option<f64>],
+        name: impl Fn() -> String,
+    ) -> Result<RunVerdict, QcError> {
+        let n_levels = self.targets.len();
+        if run.len() != n_levels {
+            return Err(QcError(format!(
+                "{} has {} values for {n_levels} levels: give one value per level, null \
+                 where a level was not run",
+                name(),
+                run.len(),
+            )));
         }
-        let history = &obs[first..end];
-        let this_run = &obs[start_of_run..end];
+        if let Some(l) = run.iter().position(|v| v.is_some_and(|v| !v.is_finite())) {
+            return Err(QcError(format!("{}[{l}] is not a number", name())));
+        }
+        let r = self.runs;
+        let this_run: Vec<Obs> = run
+            .iter()
+            .enumerate()
+            .filter_map(|(level, v)| {
+                v.map(|v| Obs {
+                    run: r,
+                    level,
+                    z: z_score(v, self.targets[level]),
+                })
+            })
+            .collect();
+        for o in &this_run {
+            self.per_level[o.level].push(*o);
+            self.in_order.push(*o);
+        }
         let mut violations = Vec::new();
-        for setting in rules {
-            check_rule(*setting, targets.len(), history, this_run, &mut violations);
+        for setting in &self.rules {
+            check_rule(
+                *setting,
+                n_levels,
+                &self.per_level,
+                &self.in_order,
+                &this_run,
+                &mut violations,
+            );
         }
         let decision = violations.iter().fold(Decision::Accept, |d, v| {
             d.max(match v.action {
@@ -454,15 +532,25 @@ pub fn evaluate_with(
                 Action::Reject => Decision::Reject,
             })
         });
-        if options.restart_after_reject && decision == Decision::Reject {
-            first = end;
+        self.runs += 1;
+        if self.options.restart_after_reject && decision == Decision::Reject {
+            self.per_level.iter_mut().for_each(Vec::clear);
+            self.in_order.clear();
         }
-        verdicts.push(RunVerdict {
+        let keep = self.keep;
+        let trim = |v: &mut Vec<Obs>| {
+            // Amortised: drop the old results only once the window is well past full.
+            if v.len() > keep.saturating_mul(4) {
+                v.drain(..v.len() - keep);
+            }
+        };
+        self.per_level.iter_mut().for_each(trim);
+        trim(&mut self.in_order);
+        Ok(RunVerdict {
             decision,
             violations,
-        });
+        })
     }
-    Ok(verdicts)
 }
 
 /// +1 if beyond +limit, −1 if beyond −limit, 0 otherwise.
@@ -531,20 +619,19 @@ fn window_matches(p: Pattern, window: &[Obs]) -> Option<Vec<Obs>> {
             if newest == 0 {
                 return None;
             }
-            let hit: Vec<Obs> = w
-                .iter()
-                .copied()
-                .filter(|o| beyond(o.z, limit) == newest)
-                .collect();
-            (hit.len() >= hits).then_some(hit)
+            let is_hit = |o: &&Obs| beyond(o.z, limit) == newest;
+            (w.iter().filter(is_hit).count() >= hits)
+                .then(|| w.iter().filter(is_hit).copied().collect())
         }
         Pattern::Range { .. } => None,
     }
 }
 
+/// `per_level[l]` and `history` end with this run's results.
 fn check_rule(
     setting: RuleSetting,
     n_levels: usize,
+    per_level: &[Vec<Obs>],
     history: &[Obs],
     this_run: &[Obs],
     out: &mut Vec<Violation>,
@@ -557,10 +644,15 @@ fn check_rule(
         Pattern::Beyond { count, .. } | Pattern::Side { count } => count,
         Pattern::Some { of, .. } => of,
         Pattern::Range { limit } => {
-            let high: Vec<Obs> = this_run.iter().copied().filter(|o| o.z > limit).collect();
-            let low: Vec<Obs> = this_run.iter().copied().filter(|o| o.z < -limit).collect();
-            if !high.is_empty() && !low.is_empty() {
-                let both: Vec<Obs> = high.into_iter().chain(low).collect();
+            let high = |o: &&Obs| o.z > limit;
+            let low = |o: &&Obs| o.z < -limit;
+            if this_run.iter().any(|o| high(&o)) && this_run.iter().any(|o| low(&o)) {
+                let both: Vec<Obs> = this_run
+                    .iter()
+                    .filter(high)
+                    .chain(this_run.iter().filter(low))
+                    .copied()
+                    .collect();
                 out.push(violation(setting, Scope::WithinRun, &both));
             }
             return;
@@ -568,45 +660,30 @@ fn check_rule(
     };
     // One result: any level of this run.
     if window_len == 1 {
-        let hits: Vec<Obs> = this_run
-            .iter()
-            .copied()
-            .filter(|o| window_matches(pattern, std::slice::from_ref(o)).is_some())
-            .collect();
-        if !hits.is_empty() {
+        let hit = |o: &&Obs| window_matches(pattern, std::slice::from_ref(*o)).is_some();
+        if this_run.iter().any(|o| hit(&o)) {
+            let hits: Vec<Obs> = this_run.iter().filter(hit).copied().collect();
             out.push(violation(setting, Scope::WithinRun, &hits));
         }
         return;
     }
     // Within the run, across levels: enough levels in this run on their own.
     if this_run.len() >= window_len {
-        let matched = match pattern {
-            Pattern::Beyond { count, limit } => [1, -1].iter().find_map(|&s| {
-                let hit: Vec<Obs> = this_run
-                    .iter()
-                    .copied()
-                    .filter(|o| beyond(o.z, limit) == s)
-                    .collect();
-                (hit.len() >= count).then_some(hit)
-            }),
-            Pattern::Side { count } => [1, -1].iter().find_map(|&s| {
-                let hit: Vec<Obs> = this_run
-                    .iter()
-                    .copied()
-                    .filter(|o| side(o.z) == s)
-                    .collect();
-                (hit.len() >= count).then_some(hit)
-            }),
-            Pattern::Some { hits, limit, .. } => [1, -1].iter().find_map(|&s| {
-                let hit: Vec<Obs> = this_run
-                    .iter()
-                    .copied()
-                    .filter(|o| beyond(o.z, limit) == s)
-                    .collect();
-                (hit.len() >= hits).then_some(hit)
-            }),
-            Pattern::Range { .. } => None,
+        let (sign, needed): (fn(f64, f64) -> i32, usize) = match pattern {
+            Pattern::Beyond { count, .. } => (beyond, count),
+            Pattern::Some { hits, .. } => (beyond, hits),
+            Pattern::Side { count } => (|z, _| side(z), count),
+            Pattern::Range { .. } => return, // R-4s was judged above
         };
+        let limit = match pattern {
+            Pattern::Beyond { limit, .. } | Pattern::Some { limit, .. } => limit,
+            _ => 0.0,
+        };
+        let matched = [1, -1].into_iter().find_map(|s| {
+            let on_side = |o: &&Obs| sign(o.z, limit) == s;
+            (this_run.iter().filter(on_side).count() >= needed)
+                .then(|| this_run.iter().filter(on_side).copied().collect::<Vec<Obs>>())
+        });
         if let Some(hit) = matched {
             out.push(violation(setting, Scope::WithinRun, &hit));
         }
@@ -616,12 +693,7 @@ fn check_rule(
         if !this_run.iter().any(|o| o.level == level) {
             continue;
         }
-        let series: Vec<Obs> = history
-            .iter()
-            .copied()
-            .filter(|o| o.level == level)
-            .collect();
-        if let Some(w) = window_matches(pattern, &series) {
+        if let Some(w) = window_matches(pattern, &per_level[level]) {
             if w.iter().any(|o| o.run != current) {
                 out.push(violation(setting, Scope::AcrossRuns, &w));
             }
@@ -683,5 +755,66 @@ mod tests {
         ];
         let e = evaluate(&t, &[vec![Some(1.0)]], &[]).unwrap_err();
         assert!(e.0.contains("runs[0]"), "{}", e.0);
+    }
+
+    #[test]
+    fn bounded_windows_give_the_verdicts_of_the_whole_history() {
+        use rand::{Rng, SeedableRng};
+        let rules: Vec<RuleSetting> = Rule::ALL.map(RuleSetting::default_for).to_vec();
+        let mut rng = rand::rngs::SmallRng::seed_from_u64(7);
+        let mut compared = 0;
+        for case in 0..60 {
+            let n_levels = 1 + case % 3;
+            let targets: Vec<LevelTarget> = (0..n_levels)
+                .map(|l| LevelTarget {
+                    mean: 50.0 * (l + 1) as f64,
+                    sd: 2.0 + l as f64,
+                })
+                .collect();
+            let options = Options {
+                restart_after_reject: case % 2 == 1,
+            };
+            // A drifting process so long same-side and beyond-limit stretches occur.
+            let mut shift = 0.0;
+            let runs: Vec<Vec<Option<f64>>> = (0..300)
+                .map(|_| {
+                    shift = (shift + rng.gen_range(-0.4..0.4f64)).clamp(-3.0, 3.0);
+                    targets
+                        .iter()
+                        .map(|t| {
+                            (rng.gen_range(0..10) != 0)
+                                .then(|| t.mean + t.sd * (shift + rng.gen_range(-1.5..1.5)))
+                        })
+                        .collect()
+                })
+                .collect();
+            let mut bounded = Judge::new(&targets, &rules, options).unwrap();
+            let mut whole = Judge::new(&targets, &rules, options)
+                .unwrap()
+                .keeping_everything();
+            for run in &runs {
+                assert_eq!(bounded.judge(run).unwrap(), whole.judge(run).unwrap());
+                compared += 1;
+            }
+            assert!(bounded.per_level.iter().all(|v| v.len() <= 4 * bounded.keep));
+        }
+        assert_eq!(compared, 60 * 300);
+    }
+
+    #[test]
+    fn a_bad_run_leaves_the_judge_as_it_was() {
+        let t = [LevelTarget {
+            mean: 100.0,
+            sd: 2.0,
+        }];
+        let rules = [RuleSetting::default_for(Rule::TwoTwoS)];
+        let mut j = Judge::new(&t, &rules, Options::default()).unwrap();
+        j.judge(&[Some(105.0)]).unwrap();
+        let e = j.judge(&[Some(f64::NAN)]).unwrap_err();
+        assert!(e.0.contains("the run[0] is not a number"), "{}", e.0);
+        assert!(j.judge(&[Some(1.0), None]).is_err());
+        assert_eq!(j.runs_judged(), 1);
+        // The second result beyond +2 SD completes 2-2s with the first.
+        assert_eq!(j.judge(&[Some(105.0)]).unwrap().decision, Decision::Reject);
     }
 }

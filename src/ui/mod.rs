@@ -214,9 +214,32 @@ pub fn App() -> impl IntoView {
     }
 }
 
+/// The lab's QC verdicts for its current state, judged once per change and shared by
+/// every view (a new instance after each change, so comparing is by identity).
+#[derive(Clone)]
+pub(super) struct Judged(pub std::sync::Arc<crate::verdicts::LabVerdicts>);
+
+impl PartialEq for Judged {
+    fn eq(&self, other: &Judged) -> bool {
+        std::sync::Arc::ptr_eq(&self.0, &other.0)
+    }
+}
+
+/// The shared verdicts (provided by the bench for the lab on screen).
+pub(super) fn judged() -> Memo<Judged> {
+    expect_context::<Memo<Judged>>()
+}
+
 #[component]
 fn Bench() -> impl IntoView {
     let (lab, set_lab) = signal::<Option<Lab>>(None);
+    provide_context(Memo::new(move |_| {
+        Judged(std::sync::Arc::new(lab.with(|l| {
+            l.as_ref()
+                .map(crate::verdicts::LabVerdicts::of)
+                .unwrap_or_default()
+        })))
+    }));
     let (problem, set_problem) = signal::<Option<String>>(None);
     let (save_state, set_save_state) = signal(SaveState::Opening);
     let (notes, set_notes) = signal::<Vec<String>>(Vec::new());
@@ -706,13 +729,15 @@ fn TodayBoard(
 ) -> impl IntoView {
     // A long gap the technologist has confirmed (the lab was closed).
     let (gap_confirmed, set_gap_confirmed) = signal(false);
+    let judged = judged();
     move || {
         let now = clock.get();
+        let verdicts = judged.get().0;
         lab.with(|l| match l {
             None => view! { <EmptyState text=NO_LAB /> }.into_any(),
             Some(l) => {
                 let today = now.with_timezone(&Local).date_naive();
-                let tests = l.tests.iter().map(|t| today_row(l, t, today)).collect_view();
+                let tests = l.tests.iter().map(|t| today_row(l, &verdicts, t, today)).collect_view();
                 let local = |t: chrono::DateTime<Utc>| t.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string();
                 let clock_line = crate::board::clock_doubt(now, l.newest_time(), last_seen)
                     .filter(|d| !(matches!(d, crate::board::ClockDoubt::Gap { .. }) && gap_confirmed.get()))
@@ -810,7 +835,7 @@ fn TodayBoard(
                         let _ = w.print();
                     }
                 };
-                let lots: Vec<String> = crate::board::crossovers(l, now, &Local)
+                let lots: Vec<String> = crate::board::crossovers(l, &verdicts, now, &Local)
                     .into_iter()
                     .map(|c| {
                         let ends = c.old_runs_out.map_or(
@@ -836,7 +861,7 @@ fn TodayBoard(
                         <ul>{lots.into_iter().map(|line| view! { <li data-testid="crossover-line">{line}</li> }).collect_view()}</ul>
                     </section>
                 });
-                let due_lines = crate::due::today(l, now, &Local);
+                let due_lines = crate::due::today(l, &verdicts, now, &Local);
                 let due_view = (!due_lines.is_empty()).then(|| view! {
                     <section class="card wide" data-testid="due-today">
                         <h3>"What is due today"</h3>
@@ -857,7 +882,7 @@ fn TodayBoard(
                         </ul>
                     </section>
                 });
-                let waiting = crate::corrective::awaiting_action(l);
+                let waiting = crate::corrective::awaiting_action(l, &verdicts);
                 let actions_view = (!waiting.is_empty()).then(|| {
                     const SHOWN: usize = 10;
                     let earlier = waiting.len().saturating_sub(SHOWN);
@@ -916,18 +941,23 @@ fn TodayBoard(
 /// no run was recorded today.
 pub(super) fn qc_today(
     l: &Lab,
+    verdicts: &crate::verdicts::LabVerdicts,
     t: &crate::lab::TestSetup,
     today: chrono::NaiveDate,
 ) -> Option<(chrono::DateTime<Local>, crate::engine::qc::Decision)> {
-    let h = l.control_history(&t.meta.id);
-    let verdicts = crate::engine::qc::evaluate(&h.targets, &h.values, &t.qc_rules).ok()?;
-    let (run, verdict) = h.runs.last().zip(verdicts.last())?;
+    let newest = l.runs_of(&t.meta.id);
+    let (run, verdict) = newest.last().zip(verdicts.test(&t.meta.id)?.newest())?;
     let when = run.run_at.with_timezone(&Local);
     (when.date_naive() == today).then_some((when, verdict.decision))
 }
 
 /// One test on today's board.
-fn today_row(l: &Lab, t: &crate::lab::TestSetup, today: chrono::NaiveDate) -> impl IntoView {
+fn today_row(
+    l: &Lab,
+    verdicts: &crate::verdicts::LabVerdicts,
+    t: &crate::lab::TestSetup,
+    today: chrono::NaiveDate,
+) -> impl IntoView {
     let cal = l
         .current_calibration(&t.meta.id)
         .map_or("not calibrated".to_string(), |c| {
@@ -936,7 +966,7 @@ fn today_row(l: &Lab, t: &crate::lab::TestSetup, today: chrono::NaiveDate) -> im
                 .format("%Y-%m-%d")
                 .to_string()
         });
-    let (latest, advice, class) = match qc_today(l, t, today) {
+    let (latest, advice, class) = match qc_today(l, verdicts, t, today) {
         None => {
             let last = l
                 .runs_of(&t.meta.id)
@@ -981,8 +1011,10 @@ fn ControlCharts(
     // The month charted: this month until another is chosen. Decisions come from the
     // whole history; the statistics below each chart are this month's and overall.
     let period = RwSignal::new(crate::period::Month::of(Utc::now(), &Local));
+    let judged = judged();
     let charts = move || {
         let month = period.get();
+        let verdicts = judged.get().0;
         lab.with(|l| {
             let Some(l) = l else {
                 return view! { <EmptyState text=NO_LAB /> }.into_any();
@@ -990,10 +1022,10 @@ fn ControlCharts(
             let mut panels = Vec::new();
             for t in &l.tests {
                 let h = l.control_history(&t.meta.id);
-                let decisions: Vec<crate::engine::qc::Decision> =
-                    crate::engine::qc::evaluate(&h.targets, &h.values, &t.qc_rules)
-                        .map(|v| v.iter().map(|r| r.decision).collect())
-                        .unwrap_or_default();
+                let decisions: Vec<crate::engine::qc::Decision> = verdicts
+                    .verdicts(&t.meta.id)
+                    .map(|v| v.iter().map(|r| r.decision).collect())
+                    .unwrap_or_default();
                 let in_month: Vec<usize> = (0..h.runs.len())
                     .filter(|&i| month.contains(h.runs[i].run_at, &Local))
                     .collect();

@@ -58,7 +58,8 @@ fn TestRuns(
         .map(|r| r.run_at.with_timezone(&Local).format("%d %b").to_string())
         .collect();
     // Every run is judged with its whole history; only the chosen month's are drawn.
-    let verdicts = qc::evaluate(&history.targets, &history.values, &test.qc_rules);
+    let judged = super::judged().get_untracked().0;
+    let test_id = test.meta.id.clone();
     let total = history.runs.len();
     let lab_for_rows = lab.clone();
     let targets = history.targets.clone();
@@ -69,7 +70,7 @@ fn TestRuns(
         let month = period.get();
         let lab = &lab_for_rows;
         let (names, history_targets) = (&names_for_rows, &targets);
-        match &verdicts {
+        match judged.verdicts(&test_id) {
         Err(e) => view! { <tr><td colspan="4">{format!("QC cannot be evaluated: {e}")}</td></tr> }.into_any(),
         Ok(verdicts) => runs
             .iter()
@@ -280,14 +281,13 @@ fn NewRun(
     let history = snapshot.control_history(&test.meta.id);
     let names: Vec<String> = history.levels.iter().map(|l| l.name.clone()).collect();
     let level_ids: Vec<String> = history.levels.iter().map(|l| l.meta.id.clone()).collect();
-    let targets = history.targets.clone();
-    let past = history.values.clone();
     let (texts, set_texts) = signal(vec![String::new(); names.len()]);
     // Held here, not only in the page: a redraw after any save starts the form closed
     // and empty (a re-run after a corrective action is measured afresh).
     let (open, set_open) = signal(false);
     let (message, set_message) = signal::<Option<String>>(None);
-    let rules = test.qc_rules.clone();
+    let judged = super::judged().get_untracked().0;
+    let (judged_for_preview, test_for_preview) = (judged.clone(), test.meta.id.clone());
     let names_for_preview = names.clone();
     // The new run judged with the history before it.
     let preview = Memo::new(move |_| {
@@ -296,19 +296,18 @@ fn NewRun(
             return None;
         }
         Some(parse_run(&t, &names_for_preview).and_then(|values| {
-            let mut all = past.clone();
-            all.push(values.clone());
-            qc::evaluate(&targets, &all, &rules)
-                .map_err(|e| e.0)
-                .and_then(|v| v.last().cloned().ok_or_else(|| "no verdict".to_string()))
-                .map(|verdict| (values, verdict))
+            let verdict = match judged_for_preview.test(&test_for_preview) {
+                Some(judge) => judge.judge_next(&values),
+                None => Err(qc::QcError("the test is not in this lab".into())),
+            };
+            verdict.map_err(|e| e.0).map(|verdict| (values, verdict))
         }))
     });
     let test_id = test.meta.id.clone();
     let chosen = RwSignal::new(Vec::<String>::new());
     let acknowledged = RwSignal::new(false);
     let test_for_check = test.clone();
-    let gate = corrective::rerun_gate(&lab, &test.meta.id);
+    let gate = corrective::rerun_gate(&lab, &judged, &test.meta.id);
     let blocked = gate.refusal();
     let on_save = move |_| {
         if let Some(refused) = gate.refusal() {
@@ -416,7 +415,8 @@ fn SampleCalculator(
         cal.calibrators.iter().map(|c| c.conc),
         test.linearity_limit,
     );
-    let gate = super::qc_today(&lab, &test, Local::now().date_naive()).map(|(_, d)| d);
+    let judged = super::judged().get_untracked().0;
+    let gate = super::qc_today(&lab, &judged, &test, Local::now().date_naive()).map(|(_, d)| d);
     let (gate_text, gate_class) = match gate {
         None => (
             "No QC run today: run the controls first. Results below are held.",
