@@ -2,12 +2,15 @@
 """Trunk post-build hook: turn trunk's output into one self-contained offline file.
 
 Reads $TRUNK_STAGING_DIR/index.html and writes $TRUNK_STAGING_DIR/cuvette.html with
-the stylesheet, icon, JS glue and wasm (base64) inlined, because browsers block module
-imports and fetch() from file:// pages. Fails loudly if the glue imports anything
+the stylesheet, icon, JS glue and wasm inlined, because browsers block module imports
+and fetch() from file:// pages. The wasm is deflated (zlib) before it is base64-encoded
+and inflated at start by the browser's own DecompressionStream: the file is about half
+the size of the raw wasm in base64. Fails loudly if the glue imports anything
 else (a snippet module would not load from file://).
 """
 import base64
 import os
+import zlib
 import re
 import sys
 from pathlib import Path
@@ -46,16 +49,22 @@ wasm = local(wasm_href.group(1)).read_bytes()
 if re.search(r"^\s*import\s", glue, re.M):
     fail("the wasm-bindgen glue imports another module (a snippet?); it would not load from file://")
 
-wasm_b64 = base64.b64encode(wasm).decode("ascii")
+deflated = zlib.compress(wasm, 9)
+wasm_b64 = base64.b64encode(deflated).decode("ascii")
 boot = f"""
 <script id="cuvette-wasm" type="application/octet-stream">{wasm_b64}</script>
 <script type="module">
 {glue}
 const b64 = document.getElementById("cuvette-wasm").textContent;
 const bin = atob(b64);
-const bytes = new Uint8Array(bin.length);
-for (let i = 0; i < bin.length; i++) bytes[i] = bin.charCodeAt(i);
-initSync({{ module: bytes }});
+const packed = new Uint8Array(bin.length);
+for (let i = 0; i < bin.length; i++) packed[i] = bin.charCodeAt(i);
+if (typeof DecompressionStream === "undefined") {{
+  document.body.textContent = "This browser is too old for Cuvette: open this file in Chrome or Edge 80 or later, or Firefox 113 or later. Nothing was changed.";
+}} else {{
+  const inflated = new Blob([packed]).stream().pipeThrough(new DecompressionStream("deflate"));
+  initSync({{ module: new Uint8Array(await new Response(inflated).arrayBuffer()) }});
+}}
 </script>
 """
 
@@ -88,4 +97,4 @@ leftover = re.findall(r"(?:src|href)=\"(?!data:|#)([^\"]+)\"", out)
 if leftover:
     fail(f"references left that file:// cannot load: {leftover}")
 (staging / "cuvette.html").write_text(out, encoding="utf-8")
-print(f"single_file.py: wrote cuvette.html ({len(out.encode())} bytes, wasm {len(wasm)} bytes)")
+print(f"single_file.py: wrote cuvette.html ({len(out.encode())} bytes, wasm {len(wasm)} bytes, deflated {len(deflated)})")
