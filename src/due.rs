@@ -1,13 +1,14 @@
 //! What is due today, per test: the QC runs the test's schedule asks for, and whether
 //! its calibration is still good — none yet, its validity over or ending today, or a
-//! recalibration triggered since it was made (a lamp change in the instrument log, a
-//! QC rejection by a rule that looks for a systematic error). Plain Rust over the lab's
+//! recalibration triggered since it was made (a lamp change in the instrument log,
+//! another lot of a reagent the calibration used, a QC rejection by a rule that looks
+//! for a systematic error). Plain Rust over the lab's
 //! records; the board shows each line and leads to the view where it is dealt with.
 
 use chrono::{DateTime, Duration, TimeZone, Utc};
 
 use crate::engine::qc::{self, Action, Decision};
-use crate::lab::{InstrumentEvent, Lab, TestSetup};
+use crate::lab::{InstrumentEvent, Lab, MaterialKind, MaterialRecord, TestSetup};
 use crate::verdicts::LabVerdicts;
 
 /// Where a line stands.
@@ -174,6 +175,20 @@ where
             ),
         );
     }
+    // Another lot of a reagent the calibration used.
+    if let Some(change) = reagent_lot_change(lab, t, cal) {
+        return line(
+            State::Triggered,
+            format!(
+                "{} lot {} in use since {} (the calibration of {} used lot {}): recalibrate",
+                change.reagent,
+                change.new_lot,
+                local(change.since, tz),
+                local(made, tz),
+                change.old_lot
+            ),
+        );
+    }
     // A rejection since the calibration by a rule that looks for a systematic error.
     if let Some(verdicts) = verdicts {
         // The newest such rejection.
@@ -244,6 +259,66 @@ where
     }
 }
 
+/// A reagent of the calibration replaced by another lot of it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReagentLotChange {
+    pub reagent: String,
+    pub old_lot: String,
+    pub new_lot: String,
+    /// When the new lot was first recorded or used after the calibration.
+    pub since: DateTime<Utc>,
+}
+
+/// The first change of a reagent lot after `cal`: a reagent the calibration names
+/// (among its materials used) whose other lot was recorded in the materials list after
+/// the calibration, or used in a QC run of the test after it. Reagents are matched by
+/// name, as the materials list does not tie a reagent to a test. A calibration that
+/// names no reagent cannot be checked and triggers nothing.
+pub fn reagent_lot_change(
+    lab: &Lab,
+    t: &TestSetup,
+    cal: &crate::lab::CalibrationRecord,
+) -> Option<ReagentLotChange> {
+    let material = |id: &str| lab.materials.iter().find(|m| m.meta.id == id);
+    let reagents: Vec<&MaterialRecord> = cal
+        .materials_used
+        .iter()
+        .filter_map(|id| material(id))
+        .filter(|m| m.kind == MaterialKind::Reagent)
+        .collect();
+    // The lot of the calibration's reagent that `m` replaces, if it is another lot.
+    let replaced = |m: &MaterialRecord| -> Option<String> {
+        reagents
+            .iter()
+            .find(|r| r.name == m.name && r.lot != m.lot && m.kind == MaterialKind::Reagent)
+            .map(|r| r.lot.clone())
+    };
+    let recorded = lab
+        .materials
+        .iter()
+        .filter(|m| m.meta.created_at > cal.performed_at)
+        .filter_map(|m| replaced(m).map(|old| (m.meta.created_at, old, m)));
+    let used = lab
+        .runs_of(&t.meta.id)
+        .into_iter()
+        .filter(|r| r.run_at > cal.performed_at)
+        .flat_map(|r| {
+            r.materials_used
+                .iter()
+                .filter_map(|id| material(id))
+                .filter_map(move |m| replaced(m).map(|old| (r.run_at, old, m)))
+        });
+    recorded
+        .chain(used)
+        .min_by_key(|(at, _, _)| *at)
+        .map(|(since, old_lot, m)| ReagentLotChange {
+            reagent: m.name.clone(),
+            old_lot,
+            new_lot: m.lot.clone(),
+            since,
+        })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -272,7 +347,14 @@ mod tests {
             .unwrap()
             .performed_at;
         let at = |d: Duration| made + d;
-        let state = |now| line(&today(&lab, &LabVerdicts::of(&lab), now, &Utc), "CREA", Task::Calibration).state;
+        let state = |now| {
+            line(
+                &today(&lab, &LabVerdicts::of(&lab), now, &Utc),
+                "CREA",
+                Task::Calibration,
+            )
+            .state
+        };
         assert_eq!(
             state(at(Duration::days(6) - Duration::hours(12))),
             State::Done
@@ -306,9 +388,85 @@ mod tests {
             note: String::new(),
             standard: None,
         });
-        let alt = line(&today(&lab, &LabVerdicts::of(&lab), now, &Utc), "ALT", Task::Calibration).clone();
+        let alt = line(
+            &today(&lab, &LabVerdicts::of(&lab), now, &Utc),
+            "ALT",
+            Task::Calibration,
+        )
+        .clone();
         assert_eq!(alt.state, State::Triggered);
         assert!(alt.why.starts_with("the lamp was changed"), "{}", alt.why);
+    }
+
+    /// Another lot of the calibration's reagent (by name) triggers recalibration from
+    /// when it was recorded or first used in a QC run of the test, whichever is first;
+    /// another reagent, the same lot again, or a calibration naming no reagent do not.
+    #[test]
+    fn another_lot_of_the_calibrations_reagent_triggers_recalibration() {
+        let mut lab = demo();
+        let crea = lab.tests.iter().find(|t| t.code == "CREA").unwrap().clone();
+        let reagent = lab
+            .materials
+            .iter()
+            .find(|m| m.name.contains("Creatinine"))
+            .unwrap()
+            .clone();
+        let cal_at = lab.current_calibration(&crea.meta.id).unwrap().performed_at;
+        let cal = |lab: &Lab| lab.current_calibration(&crea.meta.id).unwrap().clone();
+        let calibration = |lab: &Lab| {
+            let lines = today(lab, &LabVerdicts::of(lab), cal_at + Duration::days(2), &Utc);
+            line(&lines, "CREA", Task::Calibration).clone()
+        };
+        // The calibration names no reagent: nothing to compare.
+        let mut new_lot = reagent.clone();
+        new_lot.meta = RecordMeta::new([201; 16], cal_at + Duration::hours(30), "AK");
+        new_lot.lot = "DK-1299".into();
+        lab.materials.push(new_lot.clone());
+        assert_eq!(reagent_lot_change(&lab, &crea, &cal(&lab)), None);
+        assert_ne!(calibration(&lab).state, State::Triggered);
+        // Now it names the old lot.
+        let k = lab
+            .calibrations
+            .iter()
+            .position(|c| c.test_id == crea.meta.id && c.performed_at == cal_at)
+            .unwrap();
+        lab.calibrations[k].materials_used = vec![reagent.meta.id.clone()];
+        let change = reagent_lot_change(&lab, &crea, &cal(&lab)).unwrap();
+        assert_eq!(change.new_lot, "DK-1299");
+        assert_eq!(change.old_lot, reagent.lot);
+        assert_eq!(change.since, cal_at + Duration::hours(30));
+        let l = calibration(&lab);
+        assert_eq!(l.state, State::Triggered, "{}", l.why);
+        assert!(
+            l.why.contains("lot DK-1299") && l.why.contains("recalibrate"),
+            "{}",
+            l.why
+        );
+        // A QC run of the test that used the new lot earlier than its record moves
+        // the trigger to that run.
+        let mut run = lab.runs_of(&crea.meta.id).last().unwrap().clone().clone();
+        run.meta = RecordMeta::new([202; 16], cal_at + Duration::hours(3), "AK");
+        run.run_at = cal_at + Duration::hours(3);
+        run.materials_used = vec![new_lot.meta.id.clone()];
+        lab.control_runs.push(run);
+        let change = reagent_lot_change(&lab, &crea, &cal(&lab)).unwrap();
+        assert_eq!(change.since, cal_at + Duration::hours(3));
+        // Another reagent's new lot, or the same lot recorded again, do not trigger.
+        let mut lab2 = demo();
+        lab2.calibrations[k].materials_used = vec![reagent.meta.id.clone()];
+        let mut other = lab2
+            .materials
+            .iter()
+            .find(|m| m.name.contains("Glucose"))
+            .unwrap()
+            .clone();
+        other.meta = RecordMeta::new([203; 16], cal_at + Duration::hours(5), "AK");
+        other.lot = "DG-9999".into();
+        lab2.materials.push(other);
+        let mut same = reagent.clone();
+        same.meta = RecordMeta::new([204; 16], cal_at + Duration::hours(6), "AK");
+        lab2.materials.push(same);
+        assert_eq!(reagent_lot_change(&lab2, &crea, &cal(&lab2)), None);
     }
 
     /// One result beyond 3 SD (1-3s) is a random error: it does not ask for a
@@ -323,7 +481,12 @@ mod tests {
         let lab = demo();
         let now = lab.newest_time().unwrap();
         // ALT's 1-3s rejection of the demo came after its calibration: still done.
-        let alt = line(&today(&lab, &LabVerdicts::of(&lab), now, &Utc), "ALT", Task::Calibration).clone();
+        let alt = line(
+            &today(&lab, &LabVerdicts::of(&lab), now, &Utc),
+            "ALT",
+            Task::Calibration,
+        )
+        .clone();
         assert_eq!(alt.state, State::Done, "{}", alt.why);
     }
 
@@ -342,7 +505,14 @@ mod tests {
             .and_hms_opt(9, 0, 0)
             .unwrap()
             .and_utc();
-        let qc = |lab: &Lab| line(&today(lab, &LabVerdicts::of(lab), next, &Utc), "ALT", Task::Qc).clone();
+        let qc = |lab: &Lab| {
+            line(
+                &today(lab, &LabVerdicts::of(lab), next, &Utc),
+                "ALT",
+                Task::Qc,
+            )
+            .clone()
+        };
         assert_eq!(qc(&lab).state, State::Due);
         assert!(qc(&lab).why.starts_with("0 of 2 today"), "{}", qc(&lab).why);
         let levels = lab.levels_of(&id);
