@@ -72,7 +72,7 @@ pub fn crossovers<Tz: TimeZone>(
             let old_runs_out = lab
                 .materials
                 .iter()
-                .filter(|m| &m.lot == old_lot)
+                .filter(|m| &m.lot == old_lot && m.in_use())
                 .filter_map(|m| {
                     stability::evaluate(&m.stability, now, tz, WarningWindow::default())
                         .ok()

@@ -165,13 +165,19 @@ mod tests {
         };
         let action_id = action.meta.id.clone();
         lab.corrective_actions.push(action);
-        assert_eq!(rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id), RerunGate::After { action_id });
+        assert_eq!(
+            rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id),
+            RerunGate::After { action_id }
+        );
         assert_eq!(awaiting_action(&lab, &LabVerdicts::of(&lab)).len(), before);
 
         let mut good = run(&lab, 103, now + Duration::minutes(40), 0.0);
         good.after_action = Some(lab.corrective_actions[0].meta.id.clone());
         lab.control_runs.push(good);
-        assert_eq!(rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id), RerunGate::Free);
+        assert_eq!(
+            rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id),
+            RerunGate::Free
+        );
     }
 
     /// A warning (1-2s alone: one result between 2 and 3 SD, no other rule broken, by
@@ -189,7 +195,10 @@ mod tests {
         let h = lab.control_history(&test_id);
         let v = qc::evaluate(&h.targets, &h.values, &lab.tests[0].qc_rules).unwrap();
         assert_eq!(v.last().unwrap().decision, Decision::Warning);
-        assert_eq!(rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id), RerunGate::Free);
+        assert_eq!(
+            rerun_gate(&lab, &LabVerdicts::of(&lab), &test_id),
+            RerunGate::Free
+        );
         assert!(awaiting_action(&lab, &LabVerdicts::of(&lab)).is_empty());
     }
 

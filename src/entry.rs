@@ -155,9 +155,17 @@ pub struct MaterialForm {
     pub in_use_days: String,
     /// "ALT 5; Bilirubin 2": analytes with their own, shorter stability in days.
     pub analytes: String,
+    /// Received into stock, not opened yet (opened later from the materials list).
+    pub received_only: bool,
+    /// Reconstituted now: the diluent's volume in mL (empty: not reconstituted), the
+    /// diluent and its lot.
+    pub volume_ml: String,
+    pub diluent: String,
+    pub diluent_lot: String,
 }
 
 impl MaterialForm {
+    /// The material record, opened at `opened_at` (or only received then).
     pub fn into_material(
         self,
         meta: crate::lab::RecordMeta,
@@ -204,14 +212,45 @@ impl MaterialForm {
                 after_thaw_hours: None,
             });
         }
+        let reconstitution = match one_number(&self.volume_ml, "reconstitution volume")? {
+            None if self.diluent.trim().is_empty() && self.diluent_lot.trim().is_empty() => None,
+            None => {
+                return Err(
+                    "reconstitution volume: give the mL of diluent added, or clear the diluent"
+                        .into(),
+                )
+            }
+            Some(_) if self.received_only => {
+                return Err("reconstitution: a material received but not opened is not \
+                            reconstituted yet; record it when it is opened"
+                    .into())
+            }
+            Some(ml) => {
+                crate::engine::plausible::RECONSTITUTION_ML.check("reconstitution volume", ml)?;
+                let diluent = self.diluent.trim().to_string();
+                if diluent.is_empty() {
+                    return Err(
+                        "diluent: say what was added, e.g. distilled water or the maker's diluent"
+                            .into(),
+                    );
+                }
+                Some(crate::lab::Reconstitution {
+                    volume_ml: ml,
+                    diluent,
+                    diluent_lot: self.diluent_lot.trim().to_string(),
+                })
+            }
+        };
         Ok(crate::lab::MaterialRecord {
             meta,
             kind,
             name,
             lot: self.lot.trim().to_string(),
+            reconstitution,
+            discarded: None,
             stability: Material {
                 expiry,
-                opened_at: Some(opened_at),
+                opened_at: (!self.received_only).then_some(opened_at),
                 in_use_hours: Some(in_use_days * 24.0),
                 on_board_since: None,
                 on_board_hours: None,
@@ -580,6 +619,60 @@ mod form_tests {
         }
     }
 
+    /// Received only: no opening time, no reconstitution; reconstituted: the volume, the
+    /// diluent and its lot are kept, and a volume needs a diluent (and a diluent a volume).
+    #[test]
+    fn a_material_received_or_reconstituted() {
+        let at = chrono::DateTime::UNIX_EPOCH;
+        let form = MaterialForm {
+            kind: "control".into(),
+            name: "Control N".into(),
+            lot: "N1".into(),
+            expiry: "2027-02".into(),
+            in_use_days: "7".into(),
+            ..Default::default()
+        };
+        let received = MaterialForm {
+            received_only: true,
+            ..form.clone()
+        }
+        .into_material(meta(), at)
+        .unwrap();
+        assert_eq!(received.stability.opened_at, None);
+        assert_eq!(received.reconstitution, None);
+        let made_up = MaterialForm {
+            volume_ml: "5".into(),
+            diluent: " distilled water ".into(),
+            diluent_lot: "W-1".into(),
+            ..form.clone()
+        }
+        .into_material(meta(), at)
+        .unwrap();
+        assert_eq!(made_up.stability.opened_at, Some(at));
+        let r = made_up.reconstitution.unwrap();
+        assert_eq!(
+            (r.volume_ml, r.diluent.as_str(), r.diluent_lot.as_str()),
+            (5.0, "distilled water", "W-1")
+        );
+        for (volume, diluent, received_only, starts) in [
+            ("5", "", false, "diluent:"),
+            ("", "water", false, "reconstitution volume:"),
+            ("0", "water", false, "reconstitution volume"),
+            ("5000", "water", false, "reconstitution volume"),
+            ("5", "water", true, "reconstitution:"),
+        ] {
+            let e = MaterialForm {
+                volume_ml: volume.into(),
+                diluent: diluent.into(),
+                received_only,
+                ..form.clone()
+            }
+            .into_material(meta(), at)
+            .unwrap_err();
+            assert!(e.starts_with(starts), "{volume}/{diluent}: {e}");
+        }
+    }
+
     #[test]
     fn a_material_form_with_analytes() {
         let f = MaterialForm {
@@ -589,6 +682,7 @@ mod form_tests {
             expiry: "2027-02".into(),
             in_use_days: "7".into(),
             analytes: "ALT 5; Total bilirubin 2".into(),
+            ..Default::default()
         };
         let m = f
             .clone()

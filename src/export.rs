@@ -182,8 +182,9 @@ where
     }
 }
 
-/// Materials opened (or reconstituted): kind, name, lot, maker's expiry, when opened,
-/// the stability after opening in days, who.
+/// Materials received, opened (or reconstituted) or discarded in the period: kind, name,
+/// lot, maker's expiry, when received and opened, the stability after opening in days,
+/// the reconstitution, who, and the discard with its reason.
 pub fn materials_opened<Tz: TimeZone>(lab: &Lab, keep: Keep, tz: &Tz) -> Table
 where
     Tz::Offset: std::fmt::Display,
@@ -191,34 +192,54 @@ where
     let rows = lab
         .materials
         .iter()
-        .filter(|m| m.stability.opened_at.is_some_and(keep))
+        .filter(|m| {
+            keep(m.meta.created_at)
+                || m.stability.opened_at.is_some_and(keep)
+                || m.discarded.as_ref().is_some_and(|d| keep(d.at))
+        })
         .map(|m| {
             let kind = word(m.kind);
+            let r = m.reconstitution.as_ref();
+            let d = m.discarded.as_ref();
             vec![
                 kind,
                 m.name.clone(),
                 m.lot.clone(),
                 m.stability.expiry.to_string(),
+                time(m.meta.created_at, tz),
                 m.stability.opened_at.map_or(String::new(), |t| time(t, tz)),
                 m.stability
                     .in_use_hours
                     .map_or(String::new(), |h| format!("{}", h / 24.0)),
+                r.map_or(String::new(), |r| format!("{}", r.volume_ml)),
+                r.map_or(String::new(), |r| r.diluent.clone()),
+                r.map_or(String::new(), |r| r.diluent_lot.clone()),
                 m.meta.by.clone(),
+                d.map_or(String::new(), |d| time(d.at, tz)),
+                d.map_or(String::new(), |d| d.by.clone()),
+                d.map_or(String::new(), |d| d.reason.clone()),
                 m.meta.id.clone(),
             ]
         })
         .collect();
     Table {
         slug: "materials",
-        title: "Materials opened",
+        title: "Materials received, opened or discarded",
         headers: vec![
             "kind",
             "name",
             "lot",
             "maker_expiry",
+            "recorded_at",
             "opened_at",
             "stable_days_after_opening",
+            "reconstituted_ml",
+            "diluent",
+            "diluent_lot",
             "by",
+            "discarded_at",
+            "discarded_by",
+            "discard_reason",
             "record_id",
         ],
         rows,

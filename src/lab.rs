@@ -212,7 +212,9 @@ pub struct CorrectiveAction {
     pub done: String,
 }
 
-/// A reagent, calibrator or control material in use.
+/// A reagent, calibrator or control material: received (the record's creation; not
+/// opened while `stability.opened_at` is empty), opened or reconstituted, and in the end
+/// discarded. A discarded material keeps its record.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct MaterialRecord {
     pub meta: RecordMeta,
@@ -220,6 +222,29 @@ pub struct MaterialRecord {
     pub name: String,
     pub lot: String,
     pub stability: crate::engine::stability::Material,
+    /// How a lyophilised material was made up when it was opened.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub reconstitution: Option<Reconstitution>,
+    /// Taken out of use: when and why.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub discarded: Option<Discard>,
+}
+
+/// A reconstitution: the volume of diluent added, which diluent and its lot.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Reconstitution {
+    pub volume_ml: f64,
+    pub diluent: String,
+    #[serde(default)]
+    pub diluent_lot: String,
+}
+
+/// A material taken out of use.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Discard {
+    pub at: DateTime<Utc>,
+    pub by: String,
+    pub reason: String,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -332,6 +357,61 @@ impl ControlRun {
 }
 
 impl MaterialRecord {
+    /// Still in use (not discarded).
+    pub fn in_use(&self) -> bool {
+        self.discarded.is_none()
+    }
+
+    /// The material opened (or reconstituted) at `now`: its in-use stability starts.
+    pub fn opened(&self, now: DateTime<Utc>) -> Result<MaterialRecord, String> {
+        if let Some(d) = &self.discarded {
+            return Err(format!(
+                "{} was discarded ({}): it cannot be opened",
+                self.name, d.reason
+            ));
+        }
+        if let Some(t) = self.stability.opened_at {
+            return Err(format!(
+                "{} is already open (since {}); record a new vial as a new material",
+                self.name,
+                t.format("%Y-%m-%d %H:%M UTC")
+            ));
+        }
+        let mut m = self.clone();
+        m.stability.opened_at = Some(now);
+        Ok(m)
+    }
+
+    /// The material discarded at `now` by `by`, for `reason` (required: the assessor asks
+    /// why a lot left use).
+    pub fn discard(
+        &self,
+        now: DateTime<Utc>,
+        by: &str,
+        reason: &str,
+    ) -> Result<MaterialRecord, String> {
+        if self.discarded.is_some() {
+            return Err(format!("{} is already discarded", self.name));
+        }
+        let reason = reason.trim();
+        if reason.is_empty() {
+            return Err(
+                "reason: say why it is discarded (expired, contaminated, spilled, QC failure…)"
+                    .into(),
+            );
+        }
+        if reason.chars().count() > 500 {
+            return Err("reason: keep it under 500 characters".into());
+        }
+        let mut m = self.clone();
+        m.discarded = Some(Discard {
+            at: now,
+            by: by.trim().to_string(),
+            reason: reason.to_string(),
+        });
+        Ok(m)
+    }
+
     fn check_fields(&self) -> Result<(), String> {
         let st = &self.stability;
         let at = |f: &str| format!("material {}: {f}", self.name);
@@ -341,6 +421,9 @@ impl MaterialRecord {
         };
         hours("stability after opening", st.in_use_hours)?;
         hours("stability on board", st.on_board_hours)?;
+        if let Some(r) = &self.reconstitution {
+            plausible::RECONSTITUTION_ML.check(&at("reconstitution volume, mL"), r.volume_ml)?;
+        }
         if let Some(f) = &st.frozen {
             hours("stability frozen", Some(f.frozen_hours))?;
             hours("stability after thawing", Some(f.after_thaw_hours))?;
@@ -882,6 +965,47 @@ mod tests {
         ids.sort();
         ids.dedup();
         assert_eq!(ids.len(), n, "record ids must be unique");
+    }
+
+    /// A received lot opens once; a discard needs a reason, happens once, and a
+    /// discarded material cannot be opened; the discard is kept on the record.
+    #[test]
+    fn a_material_is_opened_once_and_discarded_with_a_reason() {
+        let demo = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
+        let mut m = demo.materials[0].clone();
+        m.stability.opened_at = None;
+        let now: DateTime<Utc> = "2026-12-01T09:00:00Z".parse().unwrap();
+        let opened = m.opened(now).unwrap();
+        assert_eq!(opened.stability.opened_at, Some(now));
+        assert!(opened.opened(now).unwrap_err().contains("already open"));
+        assert!(m
+            .discard(now, "AK", "  ")
+            .unwrap_err()
+            .starts_with("reason:"));
+        let gone = opened.discard(now, " ak ", "spilled").unwrap();
+        assert!(!gone.in_use() && opened.in_use());
+        let d = gone.discarded.as_ref().unwrap();
+        assert_eq!(
+            (d.at, d.by.as_str(), d.reason.as_str()),
+            (now, "ak", "spilled")
+        );
+        assert!(gone
+            .discard(now, "AK", "again")
+            .unwrap_err()
+            .contains("already discarded"));
+        let mut unopened_gone = m.discard(now, "AK", "expired unopened").unwrap();
+        assert!(unopened_gone.opened(now).unwrap_err().contains("discarded"));
+        // The record round-trips with its discard and reconstitution.
+        unopened_gone.reconstitution = Some(Reconstitution {
+            volume_ml: 5.0,
+            diluent: "water".into(),
+            diluent_lot: String::new(),
+        });
+        let text = serde_json::to_string(&unopened_gone).unwrap();
+        assert_eq!(
+            serde_json::from_str::<MaterialRecord>(&text).unwrap(),
+            unopened_gone
+        );
     }
 
     #[test]

@@ -43,6 +43,22 @@ where
             ));
             continue;
         };
+        if let Some(d) = &m.discarded {
+            out.push(format!(
+                "{}: discarded {} ({}): do not use",
+                label(m),
+                when(d.at),
+                d.reason
+            ));
+            continue;
+        }
+        if m.stability.opened_at.is_none() {
+            out.push(format!(
+                "{}: not recorded as opened: open it in Materials first, so its stability \
+                 after opening counts",
+                label(m)
+            ));
+        }
         let report = match stability::evaluate(&m.stability, now, tz, WarningWindow::default()) {
             Ok(r) => r,
             Err(e) => {
@@ -78,8 +94,8 @@ where
 /// Why a save is refused: warnings the technologist has not acknowledged.
 pub fn refusal(warnings: &[String], acknowledged: bool) -> Option<&'static str> {
     (!warnings.is_empty() && !acknowledged).then_some(
-        "a material chosen is past its stability: read the warning and tick the box, \
-         or choose another material",
+        "a material chosen is past its stability, not opened or discarded: read the warning \
+         and tick the box, or choose another material",
     )
 }
 
@@ -151,6 +167,30 @@ mod tests {
             w[0]
         );
         assert!(w[1].contains("no longer in the materials list"));
+    }
+
+    /// A discarded material, or one received but never opened, asks for an
+    /// acknowledgement naming why.
+    #[test]
+    fn a_discarded_or_unopened_material_warns() {
+        let mut lab = demo();
+        let now = lab.newest_time().unwrap();
+        let glu = lab.tests[0].clone();
+        let ids = vec![lab.materials[0].meta.id.clone()];
+        assert!(warnings(&lab, &ids, &glu, now, &Utc).is_empty());
+        lab.materials[0].stability.opened_at = None;
+        let w = warnings(&lab, &ids, &glu, now, &Utc);
+        assert!(
+            w.len() == 1 && w[0].contains("not recorded as opened"),
+            "{w:?}"
+        );
+        lab.materials[0] = lab.materials[0].discard(now, "AK", "contaminated").unwrap();
+        let w = warnings(&lab, &ids, &glu, now, &Utc);
+        assert!(
+            w.len() == 1 && w[0].contains("discarded") && w[0].contains("contaminated"),
+            "{w:?}"
+        );
+        assert!(refusal(&w, false).is_some() && refusal(&w, true).is_none());
     }
 
     #[test]

@@ -99,6 +99,9 @@ pub const SD: Range = Range::closed(1e-6, LARGEST_VALUE, "");
 pub const STABILITY_HOURS: Range = Range::above(0.0, 87_600.0, "hours");
 /// A stability as inserts state it.
 pub const STABILITY_DAYS: Range = Range::above(0.0, 3_650.0, "days");
+/// A reconstitution volume: control and calibrator vials take 1–20 mL (common
+/// practice); our bound leaves room for any vial, never for a typing slip of 10 000.
+pub const RECONSTITUTION_ML: Range = Range::above(0.0, 1_000.0, "mL");
 /// A photometer's wavelength (ultraviolet to near infrared).
 pub const WAVELENGTH_NM: Range = Range::closed(200.0, 1_100.0, "nm");
 /// An allowable total error, in percent.

@@ -681,8 +681,13 @@ fn check_rule(
         };
         let matched = [1, -1].into_iter().find_map(|s| {
             let on_side = |o: &&Obs| sign(o.z, limit) == s;
-            (this_run.iter().filter(on_side).count() >= needed)
-                .then(|| this_run.iter().filter(on_side).copied().collect::<Vec<Obs>>())
+            (this_run.iter().filter(on_side).count() >= needed).then(|| {
+                this_run
+                    .iter()
+                    .filter(on_side)
+                    .copied()
+                    .collect::<Vec<Obs>>()
+            })
         });
         if let Some(hit) = matched {
             out.push(violation(setting, Scope::WithinRun, &hit));
@@ -796,7 +801,10 @@ mod tests {
                 assert_eq!(bounded.judge(run).unwrap(), whole.judge(run).unwrap());
                 compared += 1;
             }
-            assert!(bounded.per_level.iter().all(|v| v.len() <= 4 * bounded.keep));
+            assert!(bounded
+                .per_level
+                .iter()
+                .all(|v| v.len() <= 4 * bounded.keep));
         }
         assert_eq!(compared, 60 * 300);
     }

@@ -1,6 +1,8 @@
 //! The materials view: every reagent, calibrator and control in use with its
-//! usable-until (and each analyte's own), counting down; and the form that records a
-//! material opened or reconstituted now, by whom.
+//! usable-until (and each analyte's own), counting down, with its next step (open a
+//! received lot, freeze aliquots, thaw one, discard with a reason); the discarded ones
+//! apart; and the form that records a material received, opened or reconstituted now,
+//! by whom.
 
 use chrono::{Local, Utc};
 use leptos::prelude::*;
@@ -68,14 +70,16 @@ pub fn MaterialsView(
             let rows = l
                 .materials
                 .iter()
+                .filter(|m| m.in_use())
                 .map(|m| match stability::evaluate(&m.stability, now, &Local, WarningWindow::default()) {
                     Ok(r) => {
                         let actions = lifecycle_actions(m, technician);
-                        let main = row(m.name.clone(), m.lot.clone(), m.meta.by.clone(), &r.material, Some(m.meta.id.clone()), actions);
+                        let lot = lot_text(m);
+                        let main = row(m.name.clone(), lot.clone(), m.meta.by.clone(), &r.material, Some(m.meta.id.clone()), actions);
                         let per_analyte = r
                             .analytes
                             .iter()
-                            .map(|(a, u)| row(format!("  {} — {a}", m.name), m.lot.clone(), m.meta.by.clone(), u, None, ().into_any()))
+                            .map(|(a, u)| row(format!("  {} — {a}", m.name), lot.clone(), m.meta.by.clone(), u, None, ().into_any()))
                             .collect_view();
                         view! { {main}{per_analyte} }.into_any()
                     }
@@ -85,6 +89,27 @@ pub fn MaterialsView(
                     .into_any(),
                 })
                 .collect_view();
+            let discarded: Vec<_> = l.materials.iter().filter_map(|m| m.discarded.as_ref().map(|d| (m, d))).collect();
+            let discarded_view = (!discarded.is_empty()).then(|| view! {
+                <details class="discarded">
+                    <summary data-testid="discarded-materials">{format!("Discarded materials ({})", discarded.len())}</summary>
+                    <table>
+                        <thead><tr><th>"Material"</th><th>"Lot"</th><th>"Discarded"</th><th>"By"</th><th>"Why"</th><th class="no-print">"Record"</th></tr></thead>
+                        <tbody>
+                            {discarded.into_iter().map(|(m, d)| view! {
+                                <tr data-testid="discarded-row">
+                                    <td>{m.name.clone()}</td>
+                                    <td>{lot_text(m)}</td>
+                                    <td>{d.at.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()}</td>
+                                    <td>{d.by.clone()}</td>
+                                    <td>{d.reason.clone()}</td>
+                                    <td class="no-print"><super::records::HistoryButton id=m.meta.id.clone() /></td>
+                                </tr>
+                            }).collect_view()}
+                        </tbody>
+                    </table>
+                </details>
+            });
             view! {
                 <table>
                     <thead>
@@ -95,6 +120,7 @@ pub fn MaterialsView(
                     </thead>
                     <tbody>{rows}</tbody>
                 </table>
+                {discarded_view}
             }
             .into_any()
         })
@@ -111,16 +137,111 @@ pub fn MaterialsView(
     }
 }
 
-/// On a material's line: thaw a frozen aliquot (once), or freeze aliquots of a material
-/// that is not itself an aliquot. The lab is read when the button is used.
+/// The lot, with how it was reconstituted (volume, diluent and its lot).
+fn lot_text(m: &crate::lab::MaterialRecord) -> String {
+    match &m.reconstitution {
+        None => m.lot.clone(),
+        Some(r) if r.diluent_lot.is_empty() => {
+            format!("{} (made up with {} mL {})", m.lot, r.volume_ml, r.diluent)
+        }
+        Some(r) => format!(
+            "{} (made up with {} mL {} lot {})",
+            m.lot, r.volume_ml, r.diluent, r.diluent_lot
+        ),
+    }
+}
+
+/// On a material's line: open a received one; thaw a frozen aliquot (once), or freeze
+/// aliquots of a material that is not itself an aliquot; discard it with a reason. The
+/// lab is read when a button is used.
 fn lifecycle_actions(m: &crate::lab::MaterialRecord, technician: ReadSignal<String>) -> AnyView {
     let id = m.meta.id.clone();
-    match &m.stability.frozen {
+    let unopened = m.stability.opened_at.is_none() && m.stability.frozen.is_none();
+    let middle = match &m.stability.frozen {
+        _ if unopened => {
+            view! { " " <OpenButton id=id.clone() technician=technician /> }.into_any()
+        }
         Some(f) if f.thawed_at.is_none() && f.thaw_count == 0 => {
-            view! { " " <ThawButton id=id technician=technician /> }.into_any()
+            view! { " " <ThawButton id=id.clone() technician=technician /> }.into_any()
         }
         Some(_) => ().into_any(),
-        None => view! { " " <FreezeAliquots id=id technician=technician /> }.into_any(),
+        None => view! { " " <FreezeAliquots id=id.clone() technician=technician /> }.into_any(),
+    };
+    view! { {middle}" "<DiscardButton id=id technician=technician /> }.into_any()
+}
+
+#[component]
+fn OpenButton(id: String, technician: ReadSignal<String>) -> impl IntoView {
+    let trail = expect_context::<super::Trail>();
+    let (message, set_message) = signal(None::<String>);
+    let open = move |_| {
+        if let Err(e) = super::new_record(technician) {
+            return set_message.set(Some(e));
+        }
+        let Some(mut lab) = trail.current_lab() else {
+            return;
+        };
+        let now = Utc::now();
+        let Some(m) = lab.materials.iter_mut().find(|m| m.meta.id == id) else {
+            return set_message.set(Some("this material is no longer in the list".into()));
+        };
+        match m.opened(now) {
+            Ok(opened) => {
+                *m = opened;
+                let reason = format!(
+                    "opened {}",
+                    now.with_timezone(&Local).format("%Y-%m-%d %H:%M")
+                );
+                trail.amend.run(super::Change {
+                    lab,
+                    reason: Some(reason),
+                });
+            }
+            Err(e) => set_message.set(Some(e)),
+        }
+    };
+    view! {
+        <button data-testid="open-material" on:click=open>"open now"</button>
+        {move || message.get().map(|m| view! { <span class="problem" data-testid="open-message">{m}</span> })}
+    }
+}
+
+#[component]
+fn DiscardButton(id: String, technician: ReadSignal<String>) -> impl IntoView {
+    let trail = expect_context::<super::Trail>();
+    let (reason, set_reason) = signal(String::new());
+    let (message, set_message) = signal(None::<String>);
+    let discard = move |_| {
+        let initials = match super::new_record(technician) {
+            Ok((meta, _)) => meta.by,
+            Err(e) => return set_message.set(Some(e)),
+        };
+        let Some(mut lab) = trail.current_lab() else {
+            return;
+        };
+        let Some(m) = lab.materials.iter_mut().find(|m| m.meta.id == id) else {
+            return set_message.set(Some("this material is no longer in the list".into()));
+        };
+        let why = reason.get_untracked();
+        match m.discard(Utc::now(), &initials, &why) {
+            Ok(gone) => {
+                *m = gone;
+                trail.amend.run(super::Change {
+                    lab,
+                    reason: Some(format!("discarded: {}", why.trim())),
+                });
+            }
+            Err(e) => set_message.set(Some(e)),
+        }
+    };
+    view! {
+        <details class="discard">
+            <summary data-testid="discard-material">"discard"</summary>
+            <label>"why "<input size="24" data-testid="discard-reason" placeholder="expired; contaminated; QC failure"
+                on:input=move |ev| set_reason.set(event_target_value(&ev)) /></label>
+            " "<button data-testid="discard-confirm" on:click=discard>"discard"</button>
+            {move || message.get().map(|m| view! { <p class="problem" data-testid="discard-message">{m}</p> })}
+        </details>
     }
 }
 
@@ -204,6 +325,8 @@ fn FreezeAliquots(id: String, technician: ReadSignal<String>) -> impl IntoView {
                 name: format!("{}, frozen aliquot {}/{n}", source.name, k + 1),
                 lot: source.lot.clone(),
                 stability: st,
+                reconstitution: None,
+                discarded: None,
             });
         }
         trail.amend.run(super::Change { lab, reason: None });
@@ -245,6 +368,9 @@ fn NewMaterial(
                             "lot" => f.lot = v,
                             "expiry" => f.expiry = v,
                             "days" => f.in_use_days = v,
+                            "volume" => f.volume_ml = v,
+                            "diluent" => f.diluent = v,
+                            "diluent-lot" => f.diluent_lot = v,
                             _ => f.analytes = v,
                         })
                     }
@@ -262,17 +388,29 @@ fn NewMaterial(
             Ok(m) => {
                 let mut changed = lab.get_untracked().unwrap_or_else(|| Lab::empty("My lab"));
                 let name = m.name.clone();
+                let what = match (m.stability.opened_at, &m.reconstitution) {
+                    (None, _) => "received (not opened) now",
+                    (Some(_), Some(_)) => "reconstituted now",
+                    (Some(_), None) => "opened now",
+                };
                 changed.materials.push(m);
                 save.run(changed);
-                set_message.set(Some(format!("{name}: opened now by {initials}.")));
+                set_message.set(Some(format!("{name}: {what} by {initials}.")));
             }
             Err(e) => set_message.set(Some(e)),
         }
     };
     view! {
         <details class="new-material">
-            <summary data-testid="new-material">"Record a material opened or reconstituted now"</summary>
+            <summary data-testid="new-material">"Record a material received, opened or reconstituted now"</summary>
             <div class="form grid">
+                <label>
+                    "Now "
+                    <select data-testid="material-state" on:change=move |ev| set_form.update(|f| f.received_only = event_target_value(&ev) == "received")>
+                        <option value="opened">"opened or reconstituted"</option>
+                        <option value="received">"received, not opened yet"</option>
+                    </select>
+                </label>
                 <label>
                     "Kind "
                     <select data-testid="material-kind" on:change=move |ev| set_form.update(|f| f.kind = event_target_value(&ev))>
@@ -286,6 +424,9 @@ fn NewMaterial(
                 {input("expiry", "Maker's expiry ", "2027-05 or 2027-05-31")}
                 {input("days", "Stable after opening, days ", "30")}
                 {input("analytes", "Analytes with shorter stability ", "ALT 5; Bilirubin 2")}
+                {input("volume", "Reconstituted with, mL ", "5")}
+                {input("diluent", "Diluent ", "distilled water")}
+                {input("diluent-lot", "Diluent lot ", "W-2611")}
                 <button data-testid="add-material" on:click=add>"Record"</button>
                 {move || message.get().map(|m| view! { <p class="outcome" data-testid="material-message">{m}</p> })}
             </div>
@@ -308,7 +449,7 @@ pub(super) fn MaterialsUsed(
     let offered: Vec<(String, String)> = lab
         .materials
         .iter()
-        .filter(|m| kinds.contains(&m.kind))
+        .filter(|m| kinds.contains(&m.kind) && m.in_use())
         .map(|m| (m.meta.id.clone(), format!("{} lot {}", m.name, m.lot)))
         .collect();
     if offered.is_empty() {

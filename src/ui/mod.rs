@@ -770,6 +770,7 @@ fn TodayBoard(
                 let attention: Vec<(String, String)> = l
                     .materials
                     .iter()
+                    .filter(|m| m.in_use())
                     .filter_map(|m| {
                         let r = stability::evaluate(&m.stability, now, &Local, WarningWindow::default()).ok()?;
                         let mut lines = vec![(&r.material, None)];

@@ -97,7 +97,7 @@ test("a calibration with a calibrator past its stability is refused until acknow
     assert.equal(lines.length, 1, "the reagent is within its stability");
     assert.match(lines[0], /^Multi-analyte calibrator, frozen aliquot lot DC-0907: past its stability after thawing \(2026-11-27 \d\d:\d\d\)$/);
     await card.locator('[data-testid="save-calibration"]').click();
-    assert.match(await card.locator('[data-testid="calibration-message"]').innerText(), /past its stability: read the warning and tick the box/);
+    assert.match(await card.locator('[data-testid="calibration-message"]').innerText(), /past its stability, not opened or discarded: read the warning and tick the box/);
     assert.equal(await card.locator('[data-testid="calibration-row"]').count(), before);
     await card.locator('[data-testid="acknowledge-materials"]').check();
     await card.locator('[data-testid="save-calibration"]').click();

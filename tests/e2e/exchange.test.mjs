@@ -230,7 +230,7 @@ test("the printed day sheet: one page per section with the lab, the date, who wo
     const pages = Number(/Pages:\s+(\d+)/.exec(execFileSync("pdfinfo", [pdf]).toString())[1]);
     assert.ok(pages >= 7, `${pages} pages`);
     const text = execFileSync("pdftotext", ["-layout", pdf, "-"]).toString();
-    for (const want of ["Demo district hospital lab", "DEMO LAB", "2026-11-27", "QC results", "Corrective actions", "Calibrations", "Patient results", "Materials opened", "Instrument log", "Trail"]) {
+    for (const want of ["Demo district hospital lab", "DEMO LAB", "2026-11-27", "QC results", "Corrective actions", "Calibrations", "Patient results", "Materials received, opened or discarded", "Instrument log", "Trail"]) {
       assert.ok(text.includes(want), `the sheet lacks ${want}`);
     }
     assert.match(text, /Who worked: [A-Z]{2}/);

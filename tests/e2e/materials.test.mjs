@@ -92,7 +92,7 @@ test("a control past its stability for the test's analyte is refused until ackno
     const warning = alt.locator('[data-testid="material-warnings"]');
     assert.match(await warning.innerText(), /Multi-analyte control, normal \(lyophilised\) lot DQ-N-2611: ALT is past its stability after opening or reconstitution in this material \(2026-11-26 \d\d:\d\d\)/);
     await alt.locator('[data-testid="save-run"]').click();
-    assert.match(await alt.locator('[data-testid="run-message"]').innerText(), /past its stability: read the warning and tick the box/);
+    assert.match(await alt.locator('[data-testid="run-message"]').innerText(), /past its stability, not opened or discarded: read the warning and tick the box/);
     assert.equal(await alt.locator('[data-testid="qc-run"]').count(), before);
     await alt.locator('[data-testid="acknowledge-materials"]').check();
     await alt.locator('[data-testid="save-run"]').click();
@@ -145,6 +145,69 @@ test("aliquots are frozen from a control and one is thawed, once", async () => {
     assert.equal(await first().locator('[data-testid="thaw"]').count(), 0, "thawed once: no second thaw");
     assert.equal(await rows.filter({ hasText: ", frozen aliquot 2/2" }).first().locator('[data-testid="thaw"]').count(), 1);
     assert.ok((await rows.count()) > before);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
+
+test("a lot received unopened is opened later, reconstituted lots show their diluent, and a discard needs a reason", async () => {
+  const { context, page, problems } = await openApp(newProfile(), undefined, { now: "2026-12-01T08:00:00Z" });
+  try {
+    await byTestId(page, "initials").fill("lb");
+    await byTestId(page, "initials").press("Enter");
+    await byTestId(page, "nav-materials").click();
+    await byTestId(page, "new-material").click();
+    await byTestId(page, "material-state").selectOption("received");
+    await byTestId(page, "material-name").fill("Urea reagent R1");
+    await byTestId(page, "material-lot").fill("UR-77");
+    await byTestId(page, "material-expiry").fill("2027-06");
+    await byTestId(page, "material-days").fill("30");
+    await byTestId(page, "add-material").click();
+    assert.match(await byTestId(page, "material-message").innerText(), /received \(not opened\) now by LB/);
+    const urea = byTestId(page, "material-row").filter({ hasText: "Urea reagent R1" });
+    // Not opened: usable to the maker's expiry, with the remark.
+    assert.match(await urea.innerText(), /not opened yet/);
+    await waitSaved(page);
+    // An hour later it is opened: 30 days from then.
+    await page.clock.runFor(3600_000);
+    await urea.locator('[data-testid="open-material"]').click();
+    await page.waitForFunction(() => [...document.querySelectorAll('[data-testid="material-row"]')].some((r) => /Urea reagent R1/.test(r.textContent) && /(29 d 23 h|30 d 0 h) left/.test(r.textContent)));
+    assert.equal(await urea.locator('[data-testid="open-material"]').count(), 0, "opened once");
+    // A lyophilised control made up with 5 mL of water (the form is still open).
+    await byTestId(page, "material-state").selectOption("opened");
+    await byTestId(page, "material-kind").selectOption("control");
+    await byTestId(page, "material-name").fill("Control H (lyophilised)");
+    await byTestId(page, "material-lot").fill("H-12");
+    await byTestId(page, "material-expiry").fill("2027-03");
+    await byTestId(page, "material-days").fill("7");
+    await byTestId(page, "material-volume").fill("5");
+    await byTestId(page, "add-material").click();
+    assert.match(await byTestId(page, "material-message").innerText(), /^diluent: say what was added/);
+    await byTestId(page, "material-diluent").fill("distilled water");
+    await byTestId(page, "material-diluent-lot").fill("W-9");
+    await byTestId(page, "add-material").click();
+    assert.match(await byTestId(page, "material-message").innerText(), /reconstituted now by LB/);
+    const control = byTestId(page, "material-row").filter({ hasText: "Control H" });
+    assert.match(await control.innerText(), /H-12 \(made up with 5 mL distilled water lot W-9\)/);
+    await waitSaved(page);
+    // Discard the urea reagent: a reason is required; then it leaves the list and is
+    // kept apart with who, when and why.
+    await urea.locator('[data-testid="discard-material"]').click();
+    await urea.locator('[data-testid="discard-confirm"]').click();
+    assert.match(await urea.locator('[data-testid="discard-message"]').innerText(), /^reason: say why/);
+    await urea.locator('[data-testid="discard-reason"]').fill("reagent turbid");
+    await urea.locator('[data-testid="discard-confirm"]').click();
+    await byTestId(page, "discarded-materials").waitFor();
+    assert.equal(await byTestId(page, "material-row").filter({ hasText: "Urea reagent R1" }).count(), 0);
+    await byTestId(page, "discarded-materials").click();
+    assert.match(await byTestId(page, "discarded-row").innerText(), /Urea reagent R1\s+UR-77\s+2026-12-01 \d\d:\d\d\s+LB\s+reagent turbid/);
+    await waitSaved(page);
+    await page.reload();
+    await waitReady(page);
+    await byTestId(page, "nav-materials").click();
+    assert.equal(await byTestId(page, "discarded-row").count(), 1);
+    assert.match(await byTestId(page, "material-row").filter({ hasText: "Control H" }).innerText(), /W-9/);
     assert.deepEqual(problems, []);
   } finally {
     await context.close();
