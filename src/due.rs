@@ -444,7 +444,11 @@ mod tests {
         );
         // A QC run of the test that used the new lot earlier than its record moves
         // the trigger to that run.
-        let mut run = lab.runs_of(&crea.meta.id).last().map(|r| (*r).clone()).unwrap();
+        let mut run = lab
+            .runs_of(&crea.meta.id)
+            .last()
+            .map(|r| (*r).clone())
+            .unwrap();
         run.meta = RecordMeta::new([202; 16], cal_at + Duration::hours(3), "AK");
         run.run_at = cal_at + Duration::hours(3);
         run.materials_used = vec![new_lot.meta.id.clone()];

@@ -96,6 +96,39 @@ pub struct LeveyJennings {
     pub y_max: f64,
     /// What each run is called on the x axis (its date), run 1 first; empty: numbers.
     pub run_labels: Vec<String>,
+    /// Each point's explanation in words (same order as `points`; empty: none given).
+    pub notes: Vec<String>,
+}
+
+/// A control result explained in words for the chart: when, the value and its z-score,
+/// the run's decision and every rule it broke, with the results that broke it
+/// (`run_label` names a run of the history by its index, as violations count them).
+pub fn point_note(
+    when: &str,
+    value: f64,
+    target: super::qc::LevelTarget,
+    unit: &str,
+    verdict: Option<&super::qc::RunVerdict>,
+    level_names: &[String],
+    run_label: &dyn Fn(usize) -> String,
+) -> String {
+    let z = super::qc::z_score(value, target);
+    let head = format!(
+        "{when}: {value} {unit}, z {}",
+        super::readings::fixed(z, 2, true)
+    );
+    let Some(v) = verdict else {
+        return head;
+    };
+    if v.violations.is_empty() {
+        return format!("{head} — run accepted, no rule broken");
+    }
+    let broken: Vec<String> = v
+        .violations
+        .iter()
+        .map(|x| x.explain(level_names, run_label))
+        .collect();
+    format!("{head} — run {}: {}", v.decision.code(), broken.join("; "))
 }
 
 impl LeveyJennings {
@@ -135,7 +168,36 @@ impl LeveyJennings {
             y_min: lo,
             y_max: hi,
             run_labels: Vec::new(),
+            notes: Vec::new(),
         })
+    }
+
+    /// Explain each point: `per_run[i]` is run i's note (the runs given to [`Self::new`]);
+    /// the notes of runs without a point are dropped.
+    pub fn with_notes(mut self, per_run: &[String]) -> LeveyJennings {
+        self.notes = self
+            .points
+            .iter()
+            .map(|(x, _)| per_run.get(*x as usize - 1).cloned().unwrap_or_default())
+            .collect();
+        self
+    }
+
+    /// The point nearest a horizontal position, given as the fraction (0 at the left
+    /// edge, 1 at the right) of the plotting area, whose x axis runs from 0 to runs + 1;
+    /// `None` when no point lies within half a run of it.
+    pub fn point_at(&self, fraction: f64) -> Option<usize> {
+        if !fraction.is_finite() {
+            return None;
+        }
+        let x = fraction * (self.runs as f64 + 1.0);
+        let (k, d) = self
+            .points
+            .iter()
+            .enumerate()
+            .map(|(k, (px, _))| (k, (px - x).abs()))
+            .min_by(|a, b| a.1.total_cmp(&b.1))?;
+        (d <= 0.5).then_some(k)
     }
 
     /// Name the runs on the x axis (one label per run, run 1 first).
@@ -185,6 +247,69 @@ mod tests {
         assert_eq!(lj.y_max, 111.0);
         assert_eq!(lj.decisions, vec![Decision::Accept, Decision::Reject]);
         assert!(LeveyJennings::new("x", 1.0, 0.0, &[], &[]).is_none());
+    }
+
+    /// Runs 1 and 3 have points on an axis from 0 to 4: a quarter of the way is run 1,
+    /// three quarters run 3, the middle (run 2, not measured) and the edges nothing.
+    #[test]
+    fn the_point_under_the_pointer_and_its_note() {
+        let lj = LeveyJennings::new(
+            "GLU N",
+            100.0,
+            2.0,
+            &[Some(101.0), None, Some(111.0)],
+            &[Decision::Accept, Decision::Accept, Decision::Reject],
+        )
+        .unwrap()
+        .with_notes(&["first".into(), "second".into(), "third".into()]);
+        assert_eq!(lj.notes, vec!["first".to_string(), "third".to_string()]);
+        assert_eq!(lj.point_at(0.25), Some(0));
+        assert_eq!(lj.point_at(0.7), Some(1));
+        assert_eq!(lj.point_at(0.5), None);
+        assert_eq!(lj.point_at(0.0), None);
+        assert_eq!(lj.point_at(f64::NAN), None);
+    }
+
+    /// A result 5.5 SD above its mean in a run the engine rejected by 1-3s, explained
+    /// in words: when, value, z, the decision and the rule with its level and run.
+    #[test]
+    fn a_rejected_point_explains_its_rule() {
+        use crate::engine::qc::{evaluate, LevelTarget, Rule, RuleSetting};
+        let t = LevelTarget {
+            mean: 100.0,
+            sd: 2.0,
+        };
+        let rules = [RuleSetting::default_for(Rule::OneThreeS)];
+        let v = evaluate(&[t], &[vec![Some(101.0)], vec![Some(111.0)]], &rules).unwrap();
+        let names = vec!["Normal".to_string()];
+        let label = |r: usize| format!("day {}", r + 1);
+        let note = point_note(
+            "2026-11-02 08:00",
+            111.0,
+            t,
+            "mg/dL",
+            Some(&v[1]),
+            &names,
+            &label,
+        );
+        assert_eq!(
+            note,
+            "2026-11-02 08:00: 111 mg/dL, z +5.50 — run reject: 1-3s (reject, within the run): \
+             one result beyond ±3 SD — Normal; run day 2"
+        );
+        let calm = point_note(
+            "2026-11-01 08:00",
+            99.0,
+            t,
+            "mg/dL",
+            Some(&v[0]),
+            &names,
+            &label,
+        );
+        assert!(
+            calm.ends_with("z -0.50 — run accepted, no rule broken"),
+            "{calm}"
+        );
     }
 }
 

@@ -36,17 +36,92 @@ fn canvas_figure<S: 'static>(
     }
 }
 
-/// A Levey–Jennings chart of one control level.
+/// The Levey–Jennings canvas, and where its plotting area lies in it (the margins
+/// `draw` gives plotters): left edge and width, in canvas pixels.
+const LJ_SIZE: (u32, u32) = (720, 240);
+const LJ_PLOT_LEFT: f64 = 8.0 + 56.0;
+const LJ_PLOT_WIDTH: f64 = LJ_SIZE.0 as f64 - LJ_PLOT_LEFT - 8.0;
+
+/// A Levey–Jennings chart of one control level. Each point explains itself in words:
+/// under the pointer, when tapped, or with the arrow keys once the chart has focus;
+/// the warned and rejected points are also listed beneath in words.
 #[component]
 pub fn LeveyJenningsChart(
     /// The series to draw.
     series: LeveyJennings,
 ) -> impl IntoView {
     let title = series.title.clone();
+    let flagged: Vec<String> = series
+        .notes
+        .iter()
+        .zip(&series.decisions)
+        .filter(|(_, d)| **d != Decision::Accept)
+        .map(|(n, _)| n.clone())
+        .collect();
+    let selected = RwSignal::new(None::<usize>);
+    let for_pointer = StoredValue::new(series.clone());
+    let (for_keys, for_note) = (series.points.len(), series.notes.clone());
+    let pick = move |ev: leptos::ev::MouseEvent| {
+        let Some(el) = ev
+            .target()
+            .and_then(|t| wasm_bindgen::JsCast::dyn_into::<web_sys::HtmlElement>(t).ok())
+        else {
+            return;
+        };
+        // The canvas may be drawn narrower than its pixels (a small screen).
+        let scale = LJ_SIZE.0 as f64 / f64::from(el.client_width().max(1));
+        let x = f64::from(ev.offset_x()) * scale;
+        if let Some(k) = for_pointer.with_value(|s| s.point_at((x - LJ_PLOT_LEFT) / LJ_PLOT_WIDTH))
+        {
+            selected.set(Some(k));
+        }
+    };
+    let keys = move |ev: leptos::ev::KeyboardEvent| {
+        if for_keys == 0 {
+            return;
+        }
+        let last = for_keys - 1;
+        let next = match (ev.key().as_str(), selected.get_untracked()) {
+            ("ArrowRight", None) | ("Home", _) => 0,
+            ("ArrowLeft", None) | ("End", _) => last,
+            ("ArrowRight", Some(k)) => (k + 1).min(last),
+            ("ArrowLeft", Some(k)) => k.saturating_sub(1),
+            _ => return,
+        };
+        ev.prevent_default();
+        selected.set(Some(next));
+    };
+    let note = move || {
+        selected
+            .get()
+            .and_then(|k| for_note.get(k).cloned())
+            .unwrap_or_else(|| {
+                "Point at a result, tap it, or focus the chart and use the arrow keys: it is \
+                 explained here."
+                    .to_string()
+            })
+    };
+    let canvas = NodeRef::<Canvas>::new();
+    Effect::new(move |_| {
+        if let Some(el) = canvas.get() {
+            if let Err(e) = draw(el, &series) {
+                leptos::logging::warn!("chart not drawn: {e}");
+            }
+        }
+    });
     view! {
         <figure class="chart">
-            {canvas_figure(series, title, (720, 240), "lj-chart", draw)}
+            <figcaption>{title.clone()}</figcaption>
+            <canvas node_ref=canvas width=LJ_SIZE.0 height=LJ_SIZE.1 data-testid="lj-chart"
+                tabindex="0" aria-label=format!("{title}: use the arrow keys to read each result")
+                on:mousemove=pick on:click=pick on:keydown=keys></canvas>
+            <p class="point-note" aria-live="polite" data-testid="lj-point-note">{note}</p>
             <p class="legend muted">"● accepted run · ○ warning · ✕ rejected run"</p>
+            {(!flagged.is_empty()).then(|| view! {
+                <ul class="flagged" data-testid="lj-flagged">
+                    {flagged.into_iter().map(|n| view! { <li>{n}</li> }).collect_view()}
+                </ul>
+            })}
         </figure>
     }
 }

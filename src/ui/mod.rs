@@ -1051,7 +1051,29 @@ fn ControlCharts(
                     ) else {
                         continue;
                     };
-                    let series = series.with_run_labels(labels.clone());
+                    let level_names: Vec<String> = h.levels.iter().map(|l| l.name.clone()).collect();
+                    let run_label = |r: usize| {
+                        h.runs.get(r).map_or(format!("{}", r + 1), |run| {
+                            run.run_at.with_timezone(&Local).format("%d %b %H:%M").to_string()
+                        })
+                    };
+                    let all_verdicts = verdicts.verdicts(&t.meta.id).ok();
+                    let notes: Vec<String> = in_month
+                        .iter()
+                        .map(|&i| match values[i] {
+                            None => String::new(),
+                            Some(v) => crate::engine::charts::point_note(
+                                &h.runs[i].run_at.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string(),
+                                v,
+                                h.targets[k],
+                                &t.unit,
+                                all_verdicts.and_then(|all| all.get(i)),
+                                &level_names,
+                                &run_label,
+                            ),
+                        })
+                        .collect();
+                    let series = series.with_run_labels(labels.clone()).with_notes(&notes);
                     let results: Vec<ControlResult> = h
                         .runs
                         .iter()

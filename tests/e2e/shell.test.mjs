@@ -71,6 +71,19 @@ test("the demo lab loads from the embedded file and draws control charts", async
     return n;
   });
   assert.ok(inked > 500, `only ${inked} inked pixels`);
+  // Each point explains itself: with the keyboard (focus, End = the newest run: this
+  // morning's glucose 4-1s rejection), and under the pointer.
+  const note = byTestId(page, "lj-point-note").first();
+  await charts.first().focus();
+  await page.keyboard.press("End");
+  assert.match(await note.innerText(), /^\d{4}-\d\d-\d\d \d\d:\d\d: [\d.]+ mg\/dL, z [+-]\d\.\d\d — run reject: .*4-1s \(reject, /);
+  await page.keyboard.press("ArrowLeft");
+  assert.doesNotMatch(await note.innerText(), /4-1s \(reject, within/);
+  const box = await charts.first().boundingBox();
+  await page.mouse.move(box.x + box.width * 0.5, box.y + box.height * 0.5);
+  assert.match(await note.innerText(), /^\d{4}-\d\d-\d\d \d\d:\d\d: [\d.]+ mg\/dL, z [+-]\d\.\d\d — run (accept|warning|reject)/);
+  // The warned and rejected points are listed in words beneath the chart.
+  assert.match(await byTestId(page, "lj-flagged").first().innerText(), /4-1s \(reject, .*4 consecutive results beyond the same 1 SD limit/);
   // This month's runs, named by their dates on the axis; the month before has none.
   assert.match(await byTestId(page, "view-charts").locator("figure.chart figcaption").first().innerText(), /^GLU .* — 2026-11$/);
   await byTestId(page, "charts-period-previous").click();
