@@ -1,8 +1,88 @@
 //! The period a long history is shown for: a calendar month in the lab's time zone,
 //! stepped back and forth, and read from or written as ISO 8601 "YYYY-MM" (what an
-//! `<input type="month">` holds). Plain Rust.
+//! `<input type="month">` holds); or a range of days, "YYYY-MM-DD" to "YYYY-MM-DD"
+//! (what `<input type="date">` holds). Plain Rust.
 
-use chrono::{DateTime, Datelike, TimeZone, Utc};
+use chrono::{DateTime, Datelike, NaiveDate, TimeZone, Utc};
+
+/// The longest range of days shown at once (a year and a day: a leap year with its
+/// neighbour's first day). Our bound: what is drawn follows the period, so a range of
+/// ten years would put ten years in the page.
+pub const LONGEST_RANGE_DAYS: i64 = 367;
+
+/// What a history view shows: a month, or a range of days (both ends included).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Period {
+    Month(Month),
+    Days { from: NaiveDate, to: NaiveDate },
+}
+
+impl Period {
+    /// The month `t` falls in, in `tz`: the default period.
+    pub fn month_of<Tz: TimeZone>(t: DateTime<Utc>, tz: &Tz) -> Period {
+        Period::Month(Month::of(t, tz))
+    }
+
+    /// The days from `from` to `to` as typed ("2026-11-03"); a message says what to fix.
+    pub fn days(from: &str, to: &str) -> Result<Period, String> {
+        let date = |text: &str, which: &str| {
+            NaiveDate::parse_from_str(text.trim(), "%Y-%m-%d")
+                .map_err(|_| format!("{which}: give a date as YYYY-MM-DD (got {:?})", text.trim()))
+        };
+        let (from, to) = (date(from, "from")?, date(to, "to")?);
+        if to < from {
+            return Err("to: the last day comes on or after the first".into());
+        }
+        if (to - from).num_days() + 1 > LONGEST_RANGE_DAYS {
+            return Err(format!(
+                "to: show at most {LONGEST_RANGE_DAYS} days at once; choose a shorter range"
+            ));
+        }
+        Ok(Period::Days { from, to })
+    }
+
+    /// Whether `t` falls in the period, in `tz`.
+    pub fn contains<Tz: TimeZone>(self, t: DateTime<Utc>, tz: &Tz) -> bool {
+        match self {
+            Period::Month(m) => m.contains(t, tz),
+            Period::Days { from, to } => {
+                let day = t.with_timezone(tz).date_naive();
+                from <= day && day <= to
+            }
+        }
+    }
+
+    /// The period `by` steps later (earlier when negative): months by months, a range
+    /// of days by its own length.
+    pub fn step(self, by: i32) -> Period {
+        match self {
+            Period::Month(m) => Period::Month(m.step(by)),
+            Period::Days { from, to } => {
+                let len = chrono::Duration::days(((to - from).num_days() + 1) * by as i64);
+                match (from.checked_add_signed(len), to.checked_add_signed(len)) {
+                    (Some(from), Some(to)) => Period::Days { from, to },
+                    _ => self,
+                }
+            }
+        }
+    }
+
+    /// "2026-11", or "2026-11-03 to 2026-11-20".
+    pub fn label(self) -> String {
+        match self {
+            Period::Month(m) => m.iso(),
+            Period::Days { from, to } => format!("{from} to {to}"),
+        }
+    }
+
+    /// The month shown, when the period is one.
+    pub fn month(self) -> Option<Month> {
+        match self {
+            Period::Month(m) => Some(m),
+            Period::Days { .. } => None,
+        }
+    }
+}
 
 /// A calendar month.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
@@ -56,6 +136,41 @@ impl Month {
 mod tests {
     use super::*;
     use chrono::FixedOffset;
+
+    /// A range includes both its ends in the lab's zone, steps by its own length, and
+    /// refuses a reversed, unreadable or over-long range with the field to fix.
+    #[test]
+    fn a_range_of_days() {
+        let p = Period::days("2026-11-03", " 2026-11-09").unwrap();
+        assert_eq!(p.label(), "2026-11-03 to 2026-11-09");
+        let at = |s: &str| s.parse::<DateTime<Utc>>().unwrap();
+        assert!(p.contains(at("2026-11-03T00:00:00Z"), &Utc));
+        assert!(p.contains(at("2026-11-09T23:59:59Z"), &Utc));
+        assert!(!p.contains(at("2026-11-10T00:00:00Z"), &Utc));
+        let east = FixedOffset::east_opt(3 * 3600).unwrap();
+        assert!(
+            p.contains(at("2026-11-02T21:30:00Z"), &east),
+            "03 Nov 00:30 at UTC+3"
+        );
+        assert_eq!(p.step(1).label(), "2026-11-10 to 2026-11-16");
+        assert_eq!(p.step(-1).label(), "2026-10-27 to 2026-11-02");
+        assert!(Period::days("2026-11-09", "2026-11-03")
+            .unwrap_err()
+            .starts_with("to:"));
+        assert!(Period::days("03/11/2026", "2026-11-09")
+            .unwrap_err()
+            .starts_with("from:"));
+        assert!(Period::days("2024-01-01", "2025-01-01").is_ok(), "367 days");
+        assert!(Period::days("2024-01-01", "2025-01-02")
+            .unwrap_err()
+            .contains("at most 367"));
+        let m = Period::month_of(at("2026-11-30T22:30:00Z"), &east);
+        assert_eq!(
+            (m.label(), m.step(-1).label()),
+            ("2026-12".into(), "2026-11".into())
+        );
+        assert_eq!(p.month(), None);
+    }
 
     #[test]
     fn months_step_across_years_and_read_as_iso_8601() {

@@ -56,39 +56,60 @@ pub(super) fn per_test(
     }
 }
 
-/// The month a long history is shown for, with the previous and next month one click
-/// away and any month by its picker.
+/// The period a long history is shown for: a month, with the previous and next one
+/// click away and any month by its picker, or a range of days.
 #[component]
 pub(super) fn PeriodPicker(
-    /// The month shown.
-    period: RwSignal<crate::period::Month>,
-    /// The test selector of the month field.
+    /// The period shown.
+    period: RwSignal<crate::period::Period>,
+    /// The test selector of the month field (the others are named from it).
     testid: &'static str,
 ) -> impl IntoView {
+    use crate::period::Period;
+    let (from, set_from) = signal(String::new());
+    let (to, set_to) = signal(String::new());
+    let (message, set_message) = signal(None::<String>);
+    let show_range = move |_| match Period::days(&from.get_untracked(), &to.get_untracked()) {
+        Ok(p) => {
+            set_message.set(None);
+            period.set(p);
+        }
+        Err(e) => set_message.set(Some(e)),
+    };
     view! {
-        <p class="period no-print">
-            <button data-testid=format!("{testid}-previous") on:click=move |_| period.update(|m| *m = m.step(-1))>
-                "◀ previous month"
-            </button>
-            " "
-            <label>"Month "
-                <input type="month" data-testid=testid
-                    prop:value=move || period.get().iso()
-                    on:change=move |ev| {
-                        if let Some(m) = crate::period::Month::parse(&event_target_value(&ev)) {
-                            period.set(m);
-                        }
-                    } />
-            </label>
-            " "
-            <button data-testid=format!("{testid}-next") on:click=move |_| period.update(|m| *m = m.step(1))>
-                "next month ▶"
-            </button>
-            " "
-            <button data-testid=format!("{testid}-this") on:click=move |_| period.set(crate::period::Month::of(Utc::now(), &Local))>
-                "this month"
-            </button>
-        </p>
+        <div class="period no-print">
+            <p>
+                <button data-testid=format!("{testid}-previous") on:click=move |_| period.update(|p| *p = p.step(-1))>
+                    "◀ previous"
+                </button>
+                " "
+                <label>"Month "
+                    <input type="month" data-testid=testid
+                        prop:value=move || period.get().month().map(|m| m.iso()).unwrap_or_default()
+                        on:change=move |ev| {
+                            if let Some(m) = crate::period::Month::parse(&event_target_value(&ev)) {
+                                period.set(Period::Month(m));
+                            }
+                        } />
+                </label>
+                " "
+                <button data-testid=format!("{testid}-next") on:click=move |_| period.update(|p| *p = p.step(1))>
+                    "next ▶"
+                </button>
+                " "
+                <button data-testid=format!("{testid}-this") on:click=move |_| period.set(Period::month_of(Utc::now(), &Local))>
+                    "this month"
+                </button>
+                " · "
+                <label>"from "<input type="date" data-testid=format!("{testid}-from") on:input=move |ev| set_from.set(event_target_value(&ev)) /></label>
+                " "
+                <label>"to "<input type="date" data-testid=format!("{testid}-to") on:input=move |ev| set_to.set(event_target_value(&ev)) /></label>
+                " "
+                <button data-testid=format!("{testid}-range") on:click=show_range>"show these days"</button>
+            </p>
+            <p class="muted" data-testid=format!("{testid}-shown")>{move || format!("Shown: {}", period.get().label())}</p>
+            {move || message.get().map(|m| view! { <p class="problem" data-testid=format!("{testid}-message")>{m}</p> })}
+        </div>
     }
 }
 
@@ -1011,7 +1032,7 @@ fn ControlCharts(
 ) -> impl IntoView {
     // The month charted: this month until another is chosen. Decisions come from the
     // whole history; the statistics below each chart are this month's and overall.
-    let period = RwSignal::new(crate::period::Month::of(Utc::now(), &Local));
+    let period = RwSignal::new(crate::period::Period::month_of(Utc::now(), &Local));
     let judged = judged();
     let charts = move || {
         let month = period.get();
@@ -1043,7 +1064,7 @@ fn ControlCharts(
                         continue;
                     }
                     let Some(series) = LeveyJennings::new(
-                        &format!("{} {} ({}) — {}", t.code, h.levels[k].name, t.unit, month.iso()),
+                        &format!("{} {} ({}) — {}", t.code, h.levels[k].name, t.unit, month.label()),
                         h.targets[k].mean,
                         h.targets[k].sd,
                         &month_values,
@@ -1092,7 +1113,7 @@ fn ControlCharts(
                 }
             }
             if panels.is_empty() {
-                return view! { <EmptyState text="No control results to chart in this month: choose another above." /> }.into_any();
+                return view! { <EmptyState text="No control results to chart in this period: choose another above." /> }.into_any();
             }
             panels
                 .into_iter()

@@ -11,7 +11,7 @@ use crate::engine::readings::{KineticPoint, KineticSettings};
 use crate::engine::results::{sample_result, Disposition, SampleReading, SampleResult};
 use crate::entry;
 use crate::lab::{ControlRun, CorrectiveAction, Lab, ReadingMode, TestSetup};
-use crate::period::Month;
+use crate::period::Period;
 
 #[component]
 pub fn RunsView(
@@ -22,8 +22,8 @@ pub fn RunsView(
     /// The technician's initials.
     technician: ReadSignal<String>,
 ) -> impl IntoView {
-    // The month shown: this month until another is chosen.
-    let period = RwSignal::new(Month::of(chrono::Utc::now(), &Local));
+    // The period shown: this month until another is chosen.
+    let period = RwSignal::new(Period::month_of(chrono::Utc::now(), &Local));
     view! {
         <super::PeriodPicker period=period testid="runs-period" />
         {super::per_test(lab, move |l, t| {
@@ -48,7 +48,7 @@ fn TestRuns(
     test: TestSetup,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
-    period: RwSignal<Month>,
+    period: RwSignal<Period>,
 ) -> impl IntoView {
     let history = lab.control_history(&test.meta.id);
     let names: Vec<String> = history.levels.iter().map(|l| l.name.clone()).collect();
@@ -105,7 +105,7 @@ fn TestRuns(
         move || {
             let month = period.get();
             let n = runs.iter().filter(|t| month.contains(**t, &Local)).count();
-            format!("{n} run(s) in {} of {total} recorded.", month.iso())
+            format!("{n} run(s) in {} of {total} recorded.", month.label())
         }
     };
     let rules: Vec<&str> = test.qc_rules.iter().map(|r| r.rule.code()).collect();

@@ -148,8 +148,9 @@ test("patient samples go through the calibration in use and are held when QC rej
 });
 
 // A long history is shown a month at a time: this month by default, the previous and
-// next month one click away; every run is still judged with its whole history.
-test("the QC runs view shows the chosen month only", async () => {
+// next month one click away, or a range of days; every run is still judged with its
+// whole history.
+test("the QC runs view shows the chosen month or days only", async () => {
   const { context, page, problems } = await openApp(newProfile());
   try {
     await byTestId(page, "nav-setup").click();
@@ -172,6 +173,22 @@ test("the QC runs view shows the chosen month only", async () => {
     await page.waitForFunction(() => /in 2026-11 of/.test(document.querySelector('[data-testid="runs-GLU"] [data-testid="runs-shown"]').innerText));
     // The newest run keeps the decision the whole history gives it.
     assert.match(await card.locator('[data-testid="qc-run"]').first().locator('[data-testid="qc-decision"]').innerText(), /^reject/);
+    // A range of days: both ends included; a reversed range is refused, nothing changes.
+    await byTestId(page, "runs-period-from").fill("2026-11-20");
+    await byTestId(page, "runs-period-to").fill("2026-11-10");
+    await byTestId(page, "runs-period-range").click();
+    assert.match(await byTestId(page, "runs-period-message").innerText(), /^to: the last day comes on or after the first/);
+    assert.match(await byTestId(page, "runs-period-shown").innerText(), /Shown: 2026-11$/);
+    await byTestId(page, "runs-period-from").fill("2026-11-10");
+    await byTestId(page, "runs-period-to").fill("2026-11-20");
+    await byTestId(page, "runs-period-range").click();
+    await page.waitForFunction(() => /in 2026-11-10 to 2026-11-20 of/.test(document.querySelector('[data-testid="runs-GLU"] [data-testid="runs-shown"]').innerText));
+    const days = await card.locator('[data-testid="qc-run"] td:first-child').allInnerTexts();
+    assert.ok(days.length > 0 && days.every((r) => r.slice(0, 10) >= "2026-11-10" && r.slice(0, 10) <= "2026-11-20"), days.join("\n"));
+    assert.equal(await byTestId(page, "runs-period").inputValue(), "", "no month while a range is shown");
+    // The range steps by its own length.
+    await byTestId(page, "runs-period-next").click();
+    await page.waitForFunction(() => /in 2026-11-21 to 2026-12-01 of/.test(document.querySelector('[data-testid="runs-GLU"] [data-testid="runs-shown"]').innerText));
     assert.deepEqual(problems, []);
   } finally {
     await context.close();

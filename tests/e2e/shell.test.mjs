@@ -88,7 +88,7 @@ test("the demo lab loads from the embedded file and draws control charts", async
   assert.match(await byTestId(page, "view-charts").locator("figure.chart figcaption").first().innerText(), /^GLU .* — 2026-11$/);
   await byTestId(page, "charts-period-previous").click();
   await page.waitForFunction(() => document.querySelectorAll('[data-testid="lj-chart"]').length === 0);
-  assert.match(await byTestId(page, "view-charts").innerText(), /No control results to chart in this month/);
+  assert.match(await byTestId(page, "view-charts").innerText(), /No control results to chart in this period/);
   await byTestId(page, "charts-period-this").click();
   await charts.first().waitFor();
   // Statistics beside each chart: the demo has 26 runs; those of rejected runs do not
