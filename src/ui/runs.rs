@@ -416,7 +416,8 @@ fn SampleCalculator(
         test.linearity_limit,
     );
     let judged = super::judged().get_untracked().0;
-    let gate = super::qc_today(&lab, &judged, &test, Local::now().date_naive()).map(|(_, d)| d);
+    let gate =
+        super::today::qc_today(&lab, &judged, &test, Local::now().date_naive()).map(|(_, d)| d);
     let (gate_text, gate_class) = match gate {
         None => (
             "No QC run today: run the controls first. Results below are held.",
