@@ -63,7 +63,9 @@ if (typeof DecompressionStream === "undefined") {{
   document.body.textContent = "This browser is too old for Cuvette: open this file in Chrome or Edge 80 or later, or Firefox 113 or later. Nothing was changed.";
 }} else {{
   const inflated = new Blob([packed]).stream().pipeThrough(new DecompressionStream("deflate"));
-  initSync({{ module: new Uint8Array(await new Response(inflated).arrayBuffer()) }});
+  const exports = initSync({{ module: new Uint8Array(await new Response(inflated).arrayBuffer()) }});
+  // For the benchmarks: the size of the app's memory (read only by tests/e2e/bench-*.mjs).
+  globalThis.cuvetteWasmMemory = exports.memory;
 }}
 </script>
 """

@@ -46,7 +46,7 @@ fn outcome_class(o: Outcome) -> &'static str {
 /// A test's calibration history (newest first) and the form for a new one.
 #[component]
 fn TestCalibration(
-    lab: Lab,
+    lab: super::SharedLab,
     test: TestSetup,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
@@ -193,7 +193,7 @@ fn preview(
 
 #[component]
 fn NewCalibration(
-    lab: Lab,
+    lab: super::SharedLab,
     test: TestSetup,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
@@ -268,7 +268,7 @@ fn NewCalibration(
             materials_used: used,
             acknowledged: warned,
         };
-        let mut changed = lab.clone();
+        let mut changed = Lab::clone(&lab);
         changed.calibrations.push(record);
         save.run(changed);
         set_message.set(Some(format!("saved: {}", outcome_words(verdict.outcome))));

@@ -21,7 +21,7 @@ pub(super) fn ControlCharts(
     let judged = judged();
     let charts = move || {
         let month = period.get();
-        let verdicts = judged.get().0;
+        let verdicts = judged.get_untracked().0;
         lab.with(|l| {
             let Some(l) = l else {
                 return view! { <EmptyState text=NO_LAB /> }.into_any();

@@ -440,7 +440,7 @@ fn NewMaterial(
 /// (`crate::usage::warnings`) and keeps what was acknowledged on the entry.
 #[component]
 pub(super) fn MaterialsUsed(
-    lab: Lab,
+    lab: super::SharedLab,
     test: crate::lab::TestSetup,
     kinds: Vec<crate::lab::MaterialKind>,
     chosen: RwSignal<Vec<String>>,

@@ -38,11 +38,15 @@ pub(super) fn new_record(
     ))
 }
 
+/// The lab as the cards of one drawing share it: one copy per change, however many
+/// cards and forms read it.
+pub(super) type SharedLab = std::sync::Arc<Lab>;
+
 /// One card per test, or the empty state: the shape of the Calibration and QC runs
 /// views.
 pub(super) fn per_test(
     lab: ReadSignal<Option<Lab>>,
-    card: impl Fn(&Lab, &crate::lab::TestSetup) -> AnyView + Send + Sync + 'static,
+    card: impl Fn(&SharedLab, &crate::lab::TestSetup) -> AnyView + Send + Sync + 'static,
 ) -> impl IntoView {
     move || {
         lab.with(|l| match l {
@@ -50,7 +54,10 @@ pub(super) fn per_test(
             Some(l) if l.tests.is_empty() => {
                 view! { <EmptyState text="No tests set up yet: add them in Set-up." /> }.into_any()
             }
-            Some(l) => l.tests.iter().map(|t| card(l, t)).collect_view().into_any(),
+            Some(l) => {
+                let shared = SharedLab::new(l.clone());
+                shared.tests.iter().map(|t| card(&shared, t)).collect_view().into_any()
+            }
         })
     }
 }
@@ -531,6 +538,15 @@ fn Bench() -> impl IntoView {
         revision,
         shelf,
     });
+    // Each view draws the lab only while it is shown.
+    let lab_today = gated(lab, revision, active, View::Today);
+    let lab_calibration = gated(lab, revision, active, View::Calibration);
+    let lab_runs = gated(lab, revision, active, View::Runs);
+    let lab_charts = gated(lab, revision, active, View::Charts);
+    let lab_materials = gated(lab, revision, active, View::Materials);
+    let lab_instrument = gated(lab, revision, active, View::Instrument);
+    let lab_records = gated(lab, revision, active, View::Records);
+    let lab_setup = gated(lab, revision, active, View::Setup);
     let in_demo = move || book.get() == store::Book::Demo;
     let lab_name = move || {
         lab.with(|l| {
@@ -670,38 +686,59 @@ fn Bench() -> impl IntoView {
         </nav>
         <main>
             <ViewPanel view=View::Today active=active>
-                <records::StorageWarning lab=lab clock=clock />
-                <today::TodayBoard lab=lab clock=clock go=Callback::new(choose) last_seen=last_seen />
+                <records::StorageWarning lab=lab_today clock=clock />
+                <today::TodayBoard lab=lab_today clock=clock go=Callback::new(choose) last_seen=last_seen />
             </ViewPanel>
             <ViewPanel view=View::Calibration active=active>
-                <calibration::CalibrationView lab=lab save=save technician=technician />
+                <calibration::CalibrationView lab=lab_calibration save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Runs active=active>
-                <runs::RunsView lab=lab save=save technician=technician />
+                <runs::RunsView lab=lab_runs save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Charts active=active>
-                <control_charts::ControlCharts lab=lab />
-                <exchange::MonthlyReview lab=lab clock=clock sheet=set_sheet />
-                <planning::PlanningPanel lab=lab />
+                <control_charts::ControlCharts lab=lab_charts />
+                <exchange::MonthlyReview lab=lab_charts clock=clock sheet=set_sheet />
+                <planning::PlanningPanel lab=lab_charts />
             </ViewPanel>
             <ViewPanel view=View::Materials active=active>
-                <materials::MaterialsView lab=lab save=save technician=technician clock=clock />
+                <materials::MaterialsView lab=lab_materials save=save technician=technician clock=clock />
             </ViewPanel>
             <ViewPanel view=View::Instrument active=active>
-                <instrument::InstrumentView lab=lab save=save technician=technician />
+                <instrument::InstrumentView lab=lab_instrument save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Records active=active>
-                <exchange::ExchangePanel lab=lab clock=clock sheet=set_sheet />
-                <exchange::ArchivePanel lab=lab clock=clock />
-                <records::StorageMeter lab=lab clock=clock />
+                <exchange::ExchangePanel lab=lab_records clock=clock sheet=set_sheet />
+                <exchange::ArchivePanel lab=lab_records clock=clock />
+                <records::StorageMeter lab=lab_records clock=clock />
                 <records::DayTrail clock=clock />
             </ViewPanel>
             <ViewPanel view=View::Setup active=active>
-                <setup::SetupView lab=lab save=save technician=technician load_demo=load_demo />
+                <setup::SetupView lab=lab_setup save=save technician=technician load_demo=load_demo />
                 <exchange::VerificationPanel sheet=set_sheet />
             </ViewPanel>
         </main>
     }
+}
+
+/// The lab as one view sees it: the bench's lab while the view is shown, and the lab as
+/// it was when last shown while it is hidden, so a hidden view does no work on a change
+/// (each change is drawn by the view on screen; another view catches up when opened).
+fn gated(
+    lab: ReadSignal<Option<Lab>>,
+    revision: ReadSignal<u64>,
+    active: ReadSignal<View>,
+    view: View,
+) -> ReadSignal<Option<Lab>> {
+    let (seen, set_seen) = signal(lab.get_untracked());
+    let shown = StoredValue::new(revision.get_untracked());
+    Effect::new(move |_| {
+        let now = revision.get();
+        if active.get() == view && shown.get_value() != now {
+            shown.set_value(now);
+            set_seen.set(lab.get_untracked());
+        }
+    });
+    seen
 }
 
 /// One view: always in the page (so tests and screen readers find it), shown when active.

@@ -44,7 +44,7 @@ pub(super) fn decision_words(d: Decision) -> &'static str {
 /// One test's QC runs, newest first, each with the engine's decision.
 #[component]
 fn TestRuns(
-    lab: Lab,
+    lab: super::SharedLab,
     test: TestSetup,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
@@ -132,7 +132,7 @@ fn TestRuns(
 /// Under a run's decision: the corrective action recorded for a rejected run, or the
 /// form to record it; and for a re-run, the action it follows.
 fn corrective_view(
-    lab: &Lab,
+    lab: &super::SharedLab,
     run: &ControlRun,
     decision: Decision,
     save: Callback<Lab>,
@@ -171,7 +171,7 @@ fn corrective_view(
 /// Record what was found and what was done after a rejected run.
 #[component]
 fn ActionForm(
-    lab: Lab,
+    lab: super::SharedLab,
     test_id: String,
     run_id: String,
     save: Callback<Lab>,
@@ -196,7 +196,7 @@ fn ActionForm(
         if let Err(e) = crate::lab::check_record(&action) {
             return set_message.set(Some(e));
         }
-        let mut changed = lab.clone();
+        let mut changed = Lab::clone(&lab);
         changed.corrective_actions.push(action);
         save.run(changed);
     };
@@ -271,7 +271,7 @@ fn parse_run(texts: &[String], names: &[String]) -> Result<Vec<Option<f64>>, Str
 
 #[component]
 fn NewRun(
-    lab: Lab,
+    lab: super::SharedLab,
     test: TestSetup,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
@@ -326,7 +326,7 @@ fn NewRun(
         if let Some(refused) = crate::usage::refusal(&warned, acknowledged.get_untracked()) {
             return set_message.set(Some(refused.into()));
         }
-        let mut changed = lab.clone();
+        let mut changed = Lab::clone(&lab);
         changed.control_runs.push(ControlRun {
             meta,
             test_id: test_id.clone(),
@@ -403,7 +403,7 @@ fn NewRun(
 /// Patient samples of one test through the calibration in use, gated by today's QC.
 #[component]
 fn SampleCalculator(
-    lab: Lab,
+    lab: super::SharedLab,
     test: TestSetup,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
@@ -504,7 +504,7 @@ fn SampleCalculator(
             Ok(_) => return set_recorded.set(Some("type the samples first".into())),
             Err(e) => return set_recorded.set(Some(e)),
         };
-        let mut changed = lab_now.clone();
+        let mut changed = Lab::clone(&lab_now);
         for (sample_id, r) in &list {
             let (meta, at) = match super::new_record(technician) {
                 Ok(m) => m,

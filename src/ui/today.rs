@@ -26,7 +26,7 @@ pub(super) fn TodayBoard(
     let judged = judged();
     move || {
         let now = clock.get();
-        let verdicts = judged.get().0;
+        let verdicts = judged.get_untracked().0;
         lab.with(|l| match l {
             None => view! { <EmptyState text=NO_LAB /> }.into_any(),
             Some(l) => {
