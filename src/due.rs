@@ -37,6 +37,8 @@ impl State {
 pub enum Task {
     Qc,
     Calibration,
+    /// An instrument check by its schedule (`Line::test` names the check).
+    Instrument(InstrumentEvent),
 }
 
 /// One line of what is due.
@@ -73,7 +75,65 @@ where
         out.push(qc_line(t, &h.runs, verdicts, now, tz));
         out.push(calibration_line(lab, t, &h.runs, verdicts, now, tz));
     }
+    out.extend(instrument_lines(lab, now, tz));
     out
+}
+
+/// Each scheduled instrument check (`Lab::instrument_checks`): done while its last
+/// entry is younger than its interval in days, due on the day the interval ends (or
+/// never recorded), overdue after. Days are the lab's calendar days in `tz`.
+pub fn instrument_lines<Tz: TimeZone>(lab: &Lab, now: DateTime<Utc>, tz: &Tz) -> Vec<Line>
+where
+    Tz::Offset: std::fmt::Display,
+{
+    let day = |t: DateTime<Utc>| t.with_timezone(tz).date_naive();
+    let today = day(now);
+    lab.instrument_checks
+        .iter()
+        .filter(|c| c.every_days > 0)
+        .map(|c| {
+            let name = c.event.words();
+            let name = name.split(" (").next().unwrap_or(name);
+            let schedule = if c.every_days == 1 {
+                "every day".to_string()
+            } else {
+                format!("every {} days", c.every_days)
+            };
+            let last = lab
+                .instrument_log
+                .iter()
+                .filter(|e| e.event == c.event && e.at <= now)
+                .map(|e| e.at)
+                .max();
+            let (state, why) = match last {
+                None => (State::Due, format!("{schedule}; none recorded yet")),
+                Some(at) => {
+                    let next = day(at) + Duration::days(c.every_days as i64);
+                    let last = local(at, tz);
+                    if today < next {
+                        (State::Done, format!("{schedule}; last {last}, next {next}"))
+                    } else if today == next {
+                        (State::Due, format!("{schedule}; last {last}: due today"))
+                    } else {
+                        (
+                            State::Overdue,
+                            format!("{schedule}; last {last}: was due {next}"),
+                        )
+                    }
+                }
+            };
+            let mut test = name.to_string();
+            if let Some(first) = test.get_mut(..1) {
+                first.make_ascii_uppercase();
+            }
+            Line {
+                test,
+                task: Task::Instrument(c.event),
+                state,
+                why,
+            }
+        })
+        .collect()
 }
 
 fn qc_line<Tz: TimeZone>(
@@ -396,6 +456,85 @@ mod tests {
         .clone();
         assert_eq!(alt.state, State::Triggered);
         assert!(alt.why.starts_with("the lamp was changed"), "{}", alt.why);
+    }
+
+    /// A daily temperature check: done the day of the check, due the next day, overdue
+    /// after; a weekly photometer check is done for six days after it; never recorded
+    /// is due; an interval of 0 schedules nothing.
+    #[test]
+    fn instrument_checks_fall_due_by_their_interval() {
+        use crate::lab::CheckSchedule;
+        let mut lab = demo();
+        lab.instrument_checks = vec![
+            CheckSchedule {
+                event: InstrumentEvent::TemperatureCheck,
+                every_days: 1,
+            },
+            CheckSchedule {
+                event: InstrumentEvent::PhotometerCheck,
+                every_days: 7,
+            },
+            CheckSchedule {
+                event: InstrumentEvent::ServiceVisit,
+                every_days: 0,
+            },
+        ];
+        let newest_temperature = lab
+            .instrument_log
+            .iter()
+            .filter(|e| e.event == InstrumentEvent::TemperatureCheck)
+            .map(|e| e.at)
+            .max()
+            .unwrap();
+        let newest_photometer = lab
+            .instrument_log
+            .iter()
+            .filter(|e| e.event == InstrumentEvent::PhotometerCheck)
+            .map(|e| e.at)
+            .max()
+            .unwrap();
+        let lines = |now| instrument_lines(&lab, now, &Utc);
+        let state = |now, event| {
+            lines(now)
+                .into_iter()
+                .find(|l| l.task == Task::Instrument(event))
+                .map(|l| l.state)
+        };
+        let t = InstrumentEvent::TemperatureCheck;
+        assert_eq!(
+            state(newest_temperature + Duration::hours(1), t),
+            Some(State::Done)
+        );
+        assert_eq!(
+            state(newest_temperature + Duration::days(1), t),
+            Some(State::Due)
+        );
+        assert_eq!(
+            state(newest_temperature + Duration::days(2), t),
+            Some(State::Overdue)
+        );
+        let p = InstrumentEvent::PhotometerCheck;
+        assert_eq!(
+            state(newest_photometer + Duration::days(6), p),
+            Some(State::Done)
+        );
+        assert_eq!(
+            state(newest_photometer + Duration::days(7), p),
+            Some(State::Due)
+        );
+        let l = lines(newest_photometer + Duration::days(9));
+        assert_eq!(l.len(), 2, "an interval of 0 schedules nothing");
+        assert!(
+            l[1].why.starts_with("every 7 days; last ") && l[1].why.contains("was due"),
+            "{}",
+            l[1].why
+        );
+        assert_eq!(l[0].test, "Temperature check");
+        lab.instrument_log.clear();
+        let l = instrument_lines(&lab, newest_photometer, &Utc);
+        assert!(l
+            .iter()
+            .all(|l| l.state == State::Due && l.why.ends_with("none recorded yet")));
     }
 
     /// Another lot of the calibration's reagent (by name) triggers recalibration from

@@ -261,6 +261,32 @@ impl MaterialForm {
     }
 }
 
+/// The instrument check intervals as typed in Set-up, one text per
+/// [`crate::lab::SCHEDULABLE_CHECKS`] entry: whole days from 1 to 366, empty for not
+/// scheduled.
+pub fn check_schedule(texts: &[String]) -> Result<Vec<crate::lab::CheckSchedule>, String> {
+    let mut out = Vec::new();
+    for (event, text) in crate::lab::SCHEDULABLE_CHECKS.iter().zip(texts) {
+        let text = text.trim();
+        if text.is_empty() {
+            continue;
+        }
+        let name = event.words().split(" (").next().unwrap_or(event.words());
+        let days: u32 = text
+            .parse()
+            .ok()
+            .filter(|d| (1..=366).contains(d))
+            .ok_or_else(|| {
+                format!("{name}: give whole days from 1 to 366, or leave it empty (got {text:?})")
+            })?;
+        out.push(crate::lab::CheckSchedule {
+            event: *event,
+            every_days: days,
+        });
+    }
+    Ok(out)
+}
+
 /// Frozen aliquots to make, as typed: how many (1–200), days stable frozen, hours stable
 /// after thawing → (count, frozen hours, after-thaw hours); the stability engine checks
 /// the hours' range.
@@ -671,6 +697,30 @@ mod form_tests {
             .unwrap_err();
             assert!(e.starts_with(starts), "{volume}/{diluent}: {e}");
         }
+    }
+
+    #[test]
+    fn check_intervals_are_whole_days_or_nothing() {
+        use crate::lab::InstrumentEvent;
+        let t = |v: [&str; 3]| check_schedule(&v.map(String::from));
+        let list = t(["1", "", " 7 "]).unwrap();
+        assert_eq!(list.len(), 2);
+        assert_eq!(
+            (list[0].event, list[0].every_days),
+            (InstrumentEvent::TemperatureCheck, 1)
+        );
+        assert_eq!(
+            (list[1].event, list[1].every_days),
+            (InstrumentEvent::Maintenance, 7)
+        );
+        for bad in ["0", "1.5", "400", "weekly", "-1"] {
+            let e = t(["1", bad, ""]).unwrap_err();
+            assert!(
+                e.starts_with("photometer check: give whole days"),
+                "{bad}: {e}"
+            );
+        }
+        assert!(t(["", "", ""]).unwrap().is_empty());
     }
 
     #[test]

@@ -208,6 +208,8 @@ pub struct Settings {
     pub temperature_limits: Limits,
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub absorbance_standards: Vec<crate::lab::AbsorbanceStandard>,
+    #[serde(default = "crate::lab::default_instrument_checks")]
+    pub instrument_checks: Vec<crate::lab::CheckSchedule>,
 }
 
 impl Settings {
@@ -217,6 +219,7 @@ impl Settings {
             demo: lab.demo,
             temperature_limits: lab.temperature_limits,
             absorbance_standards: lab.absorbance_standards.clone(),
+            instrument_checks: lab.instrument_checks.clone(),
         }
     }
 }
@@ -779,6 +782,7 @@ fn apply(
             lab.demo = s.demo;
             lab.temperature_limits = s.temperature_limits;
             lab.absorbance_standards = s.absorbance_standards;
+            lab.instrument_checks = s.instrument_checks;
         }
         Kind::Test => put(&mut lab.tests, e.action, &e.id, v, e.seq)?,
         Kind::ControlLevel => put(&mut lab.control_levels, e.action, &e.id, v, e.seq)?,

@@ -686,6 +686,32 @@ pub struct Lab {
     /// The photometer's absorbance standards (the lab's certificates).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub absorbance_standards: Vec<AbsorbanceStandard>,
+    /// How often each instrument check is due.
+    #[serde(default = "default_instrument_checks")]
+    pub instrument_checks: Vec<CheckSchedule>,
+}
+
+/// An instrument check the lab does every so many days (1: every day).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub struct CheckSchedule {
+    pub event: InstrumentEvent,
+    pub every_days: u32,
+}
+
+/// The checks the board can schedule, in the order Set-up lists them.
+pub const SCHEDULABLE_CHECKS: [InstrumentEvent; 3] = [
+    InstrumentEvent::TemperatureCheck,
+    InstrumentEvent::PhotometerCheck,
+    InstrumentEvent::Maintenance,
+];
+
+/// A lab that set nothing checks the reaction temperature every day (common practice
+/// for a photometric analyser; the maker's manual and the lab's policy decide).
+pub fn default_instrument_checks() -> Vec<CheckSchedule> {
+    vec![CheckSchedule {
+        event: InstrumentEvent::TemperatureCheck,
+        every_days: 1,
+    }]
 }
 
 impl Lab {
@@ -705,6 +731,7 @@ impl Lab {
             corrective_actions: Vec::new(),
             temperature_limits: default_temperature_limits(),
             absorbance_standards: Vec::new(),
+            instrument_checks: default_instrument_checks(),
         }
     }
 

@@ -52,7 +52,8 @@ where
             ));
             continue;
         }
-        if m.stability.opened_at.is_none() {
+        // A frozen aliquot is thawed, not opened (its own countdown says so).
+        if m.stability.opened_at.is_none() && m.stability.frozen.is_none() {
             out.push(format!(
                 "{}: not recorded as opened: open it in Materials first, so its stability \
                  after opening counts",

@@ -56,7 +56,12 @@ pub(super) fn per_test(
             }
             Some(l) => {
                 let shared = SharedLab::new(l.clone());
-                shared.tests.iter().map(|t| card(&shared, t)).collect_view().into_any()
+                shared
+                    .tests
+                    .iter()
+                    .map(|t| card(&shared, t))
+                    .collect_view()
+                    .into_any()
             }
         })
     }

@@ -79,6 +79,7 @@ pub fn SetupView(
             <NewTest lab=lab save=save technician=technician />
         </section>
         <Standards lab=lab save=save />
+        <InstrumentChecks lab=lab save=save />
         <section class="card">
             <h3>"Demo lab"</h3>
             <p>
@@ -92,6 +93,66 @@ pub fn SetupView(
 }
 
 /// The photometer's absorbance standards, as the lab's certificates give them.
+/// How often each instrument check is due: days between checks, empty for none.
+#[component]
+fn InstrumentChecks(lab: ReadSignal<Option<Lab>>, save: Callback<Lab>) -> impl IntoView {
+    use crate::lab::SCHEDULABLE_CHECKS;
+    let stored = move |k: usize| {
+        lab.with(|l| {
+            l.as_ref()
+                .and_then(|l| {
+                    l.instrument_checks
+                        .iter()
+                        .find(|c| c.event == SCHEDULABLE_CHECKS[k] && c.every_days > 0)
+                })
+                .map(|c| c.every_days.to_string())
+                .unwrap_or_default()
+        })
+    };
+    let typed = RwSignal::new([None::<String>, None, None]);
+    let (message, set_message) = signal(None::<String>);
+    let save_checks = move |_| {
+        let texts: Vec<String> = (0..SCHEDULABLE_CHECKS.len())
+            .map(|k| {
+                typed
+                    .with_untracked(|t| t[k].clone())
+                    .unwrap_or_else(|| stored(k))
+            })
+            .collect();
+        match entry::check_schedule(&texts) {
+            Ok(list) => {
+                let Some(mut changed) = lab.get_untracked() else {
+                    return set_message.set(Some("set up or load a lab first".into()));
+                };
+                changed.instrument_checks = list;
+                save.run(changed);
+                typed.set([None, None, None]);
+                set_message.set(Some("check intervals saved".into()));
+            }
+            Err(e) => set_message.set(Some(e)),
+        }
+    };
+    view! {
+        <section class="card">
+            <h3>"Instrument checks: how often"</h3>
+            <p class="muted">"Days between checks (1 = every day; empty = not scheduled). Today's board \
+                says which are due. The analyser's manual and the lab's policy decide the intervals."</p>
+            <p class="form grid">
+                {SCHEDULABLE_CHECKS.iter().enumerate().map(|(k, e)| view! {
+                    <label>{format!("{} every ", e.words().split(" (").next().unwrap_or(e.words()))}
+                        <input size="3" data-testid=format!("check-days-{}", e.code())
+                            prop:value=move || typed.with(|t| t[k].clone()).unwrap_or_else(|| stored(k))
+                            on:input=move |ev| typed.update(|t| t[k] = Some(event_target_value(&ev))) />
+                        " days"
+                    </label>
+                }).collect_view()}
+                <button data-testid="save-checks" on:click=save_checks>"Save intervals"</button>
+            </p>
+            {move || message.get().map(|m| view! { <p class="outcome" data-testid="checks-message">{m}</p> })}
+        </section>
+    }
+}
+
 #[component]
 fn Standards(lab: ReadSignal<Option<Lab>>, save: Callback<Lab>) -> impl IntoView {
     let stored = move || {

@@ -163,10 +163,11 @@ pub(super) fn TodayBoard(
                         <ul class="due">
                             {due_lines.into_iter().map(|d| {
                                 let (task, place) = match d.task {
-                                    crate::due::Task::Qc => ("QC", View::Runs),
-                                    crate::due::Task::Calibration => ("calibration", View::Calibration),
+                                    crate::due::Task::Qc => (" QC", View::Runs),
+                                    crate::due::Task::Calibration => (" calibration", View::Calibration),
+                                    crate::due::Task::Instrument(_) => ("", View::Instrument),
                                 };
-                                let text = format!("{} {task}: {} — {}", d.test, d.state.code(), d.why);
+                                let text = format!("{}{task}: {} — {}", d.test, d.state.code(), d.why);
                                 view! {
                                     <li class=format!("due-{}", d.state.code())>
                                         <button class="link" data-testid="due-line" data-state=d.state.code()

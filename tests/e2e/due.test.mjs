@@ -17,15 +17,17 @@ test("the demo's board says what is due this morning and why, and a calibration 
     await byTestId(page, "nav-today").click();
     const lines = () => byTestId(page, "due-line").allInnerTexts();
     const got = await lines();
-    assert.equal(got.length, 6, got.join("\n"));
+    assert.equal(got.length, 7, got.join("\n"));
     assert.match(got[0], /^GLU QC: due — 0 of 1 today; the latest was rejected: corrective action, then re-run$/);
     assert.match(got[1], /^GLU calibration: triggered — QC of 2026-11-27 \d\d:\d\d rejected by 4-1s \(a systematic error\) after the calibration of 2026-11-23/);
     assert.match(got[2], /^CREA QC: done — 1 of 1 not rejected today/);
     assert.match(got[3], /^CREA calibration: done — calibrated 2026-11-23 \d\d:\d\d, valid until 2026-11-30/);
     assert.match(got[4], /^ALT QC: done/);
     assert.match(got[5], /^ALT calibration: done — calibrated 2026-11-02 \d\d:\d\d, valid until 2026-12-02/);
+    // The reaction temperature is checked every day (the default): the last was yesterday.
+    assert.match(got[6], /^Temperature check: due — every day; last 2026-11-26 \d\d:\d\d: due today$/);
     const states = await byTestId(page, "due-line").evaluateAll((els) => els.map((e) => e.dataset.state));
-    assert.deepEqual(states, ["due", "triggered", "done", "done", "done", "done"]);
+    assert.deepEqual(states, ["due", "triggered", "done", "done", "done", "done", "due"]);
     // A line leads to its view.
     await byTestId(page, "due-line").nth(1).click();
     await byTestId(page, "view-calibration").waitFor({ state: "visible" });
@@ -50,6 +52,26 @@ test("the demo's board says what is due this morning and why, and a calibration 
     await byTestId(page, "nav-today").click();
     await page.waitForFunction(() => document.querySelectorAll('[data-testid="due-line"]')[3]?.dataset.state === "overdue");
     assert.match((await lines())[3], /^CREA calibration: overdue — calibrated 2026-11-23 \d\d:\d\d, valid 3 days: expired 2026-11-26 \d\d:\d\d; recalibrate$/);
+    // The lab checks the photometer weekly and maintains the analyser every 5 days: the
+    // last photometer check was yesterday (next on 3 December), the last maintenance on
+    // the 21st (due on the 26th, so overdue). A bad interval is refused.
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "check-days-photometer-check").fill("weekly");
+    await byTestId(page, "save-checks").click();
+    assert.match(await byTestId(page, "checks-message").innerText(), /^photometer check: give whole days from 1 to 366/);
+    await byTestId(page, "check-days-photometer-check").fill("7");
+    await byTestId(page, "check-days-maintenance").fill("5");
+    await byTestId(page, "save-checks").click();
+    assert.equal(await byTestId(page, "checks-message").innerText(), "check intervals saved");
+    await waitSaved(page);
+    await byTestId(page, "nav-today").click();
+    await page.waitForFunction(() => document.querySelectorAll('[data-testid="due-line"]').length === 9);
+    const checks = (await lines()).slice(6);
+    assert.match(checks[0], /^Temperature check: due/);
+    assert.match(checks[1], /^Photometer check: done — every 7 days; last 2026-11-26 \d\d:\d\d, next 2026-12-03$/);
+    assert.match(checks[2], /^Maintenance: overdue — every 5 days; last 2026-11-21 \d\d:\d\d: was due 2026-11-26$/);
+    await byTestId(page, "due-line").nth(8).click();
+    await byTestId(page, "view-instrument").waitFor({ state: "visible" });
     assert.deepEqual(problems, []);
   } finally {
     await context.close();
