@@ -1029,7 +1029,22 @@ fn logistic_fit(
             *best = Some(rep);
         }
     };
-    // A few starts around the data-driven one: the logistic surface has flat valleys.
+    // The data-driven start first; a few starts around it only when it does not end
+    // in a sound optimum (the logistic surface has flat valleys).
+    let positive = x.iter().copied().filter(|&v| v > 0.0);
+    let (lowest, highest) = (
+        positive.clone().fold(f64::INFINITY, f64::min),
+        positive.fold(0.0_f64, f64::max),
+    );
+    let sound = |rep: &lm::Report| {
+        let p = &rep.params;
+        rep.termination.converged()
+            && p.iter().all(|v| v.is_finite())
+            && (0.05..=50.0).contains(&p[1].abs())
+            && p[2] >= lowest / 10.0
+            && p[2] <= highest * 10.0
+            && p.get(4).is_none_or(|g| (0.05..=20.0).contains(g))
+    };
     let starts = [
         base,
         [base[0], base[1] * 0.5, base[2], base[3]],
@@ -1038,7 +1053,12 @@ fn logistic_fit(
         [base[0], base[1], base[2] * 2.0, base[3]],
     ];
     for s in &starts {
-        consider(lm::solve(&problem4, s, &settings), &mut best);
+        let rep = lm::solve(&problem4, s, &settings);
+        let done = sound(&rep);
+        consider(rep, &mut best);
+        if done {
+            break;
+        }
     }
     if model == ModelKind::FivePl {
         let problem5 = LogisticProblem::new(true, x, y, w);
@@ -1048,7 +1068,12 @@ fn logistic_fit(
         best = None;
         for g in [1.0, 0.5, 2.0, 0.25, 4.0] {
             let s = [from[0], from[1], from[2], from[3], g];
-            consider(lm::solve(&problem5, &s, &settings), &mut best);
+            let rep = lm::solve(&problem5, &s, &settings);
+            let done = sound(&rep);
+            consider(rep, &mut best);
+            if done {
+                break;
+            }
         }
     }
     let Some(rep) = best else {
@@ -1065,9 +1090,6 @@ fn logistic_fit(
     };
     let p = &rep.params;
     // A mid-point far outside the calibrators means the data do not define the curve.
-    let positive = x.iter().copied().filter(|&v| v > 0.0);
-    let lowest = positive.clone().fold(f64::INFINITY, f64::min);
-    let highest = positive.fold(0.0_f64, f64::max);
     if !(p[2] >= lowest / 100.0 && p[2] <= highest * 100.0) {
         return Err(CalibrationError::new(
             CalErrorKind::Undetermined,

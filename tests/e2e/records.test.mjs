@@ -22,7 +22,11 @@ async function initials(page, who) {
   await byTestId(page, "initials").press("Enter");
 }
 
-const materialNames = (page) => byTestId(page, "view-materials").innerText();
+/** The materials view's text (a view draws the lab while it is shown: open it first). */
+async function materialNames(page) {
+  await byTestId(page, "nav-materials").click();
+  return byTestId(page, "view-materials").innerText();
+}
 
 function killBrowser(profile) {
   // SIGKILL every browser process of this profile: no shutdown, no flush (a power cut).
