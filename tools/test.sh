@@ -16,5 +16,10 @@ cargo test --locked -q
 build_bundle
 say "browser tests (headless Chromium, file://)"
 (cd tests/e2e && npm test --silent)
+say "benchmark smoke runs (tiny sizes, so none rots; their figures are not checked)"
+BENCH_SCALE=64 cargo bench --locked -q --bench rules
+cargo bench --locked -q --bench fit -- --test
+BENCH_DAYS=20 cargo bench --locked -q --bench records
+(cd tests/e2e && node bench-views.mjs && node bench-save.mjs && node bench-import.mjs) >/dev/null
 echo
 echo "All tests passed in $(( $(date +%s) - started )) s."

@@ -543,7 +543,11 @@ fn Bench() -> impl IntoView {
         revision,
         shelf,
     });
-    // Each view draws the lab only while it is shown.
+    // Each view draws the lab, and follows the clock, only while it is shown.
+    let clock_today = gated_clock(clock, active, View::Today);
+    let clock_charts = gated_clock(clock, active, View::Charts);
+    let clock_materials = gated_clock(clock, active, View::Materials);
+    let clock_records = gated_clock(clock, active, View::Records);
     let lab_today = gated(lab, revision, active, View::Today);
     let lab_calibration = gated(lab, revision, active, View::Calibration);
     let lab_runs = gated(lab, revision, active, View::Runs);
@@ -691,8 +695,8 @@ fn Bench() -> impl IntoView {
         </nav>
         <main>
             <ViewPanel view=View::Today active=active>
-                <records::StorageWarning lab=lab_today clock=clock />
-                <today::TodayBoard lab=lab_today clock=clock go=Callback::new(choose) last_seen=last_seen />
+                <records::StorageWarning lab=lab_today clock=clock_today />
+                <today::TodayBoard lab=lab_today clock=clock_today go=Callback::new(choose) last_seen=last_seen />
             </ViewPanel>
             <ViewPanel view=View::Calibration active=active>
                 <calibration::CalibrationView lab=lab_calibration save=save technician=technician />
@@ -702,20 +706,20 @@ fn Bench() -> impl IntoView {
             </ViewPanel>
             <ViewPanel view=View::Charts active=active>
                 <control_charts::ControlCharts lab=lab_charts />
-                <exchange::MonthlyReview lab=lab_charts clock=clock sheet=set_sheet />
+                <exchange::MonthlyReview lab=lab_charts clock=clock_charts sheet=set_sheet />
                 <planning::PlanningPanel lab=lab_charts />
             </ViewPanel>
             <ViewPanel view=View::Materials active=active>
-                <materials::MaterialsView lab=lab_materials save=save technician=technician clock=clock />
+                <materials::MaterialsView lab=lab_materials save=save technician=technician clock=clock_materials />
             </ViewPanel>
             <ViewPanel view=View::Instrument active=active>
                 <instrument::InstrumentView lab=lab_instrument save=save technician=technician />
             </ViewPanel>
             <ViewPanel view=View::Records active=active>
-                <exchange::ExchangePanel lab=lab_records clock=clock sheet=set_sheet />
-                <exchange::ArchivePanel lab=lab_records clock=clock />
-                <records::StorageMeter lab=lab_records clock=clock />
-                <records::DayTrail clock=clock />
+                <exchange::ExchangePanel lab=lab_records clock=clock_records sheet=set_sheet />
+                <exchange::ArchivePanel lab=lab_records clock=clock_records />
+                <records::StorageMeter lab=lab_records clock=clock_records />
+                <records::DayTrail clock=clock_records />
             </ViewPanel>
             <ViewPanel view=View::Setup active=active>
                 <setup::SetupView lab=lab_setup save=save technician=technician load_demo=load_demo />
@@ -741,6 +745,23 @@ fn gated(
         if active.get() == view && shown.get_value() != now {
             shown.set_value(now);
             set_seen.set(lab.get_untracked());
+        }
+    });
+    seen
+}
+
+/// The clock as one view sees it: ticking while the view is shown, brought up to date
+/// when it is opened, still while it is hidden.
+fn gated_clock(
+    clock: ReadSignal<chrono::DateTime<Utc>>,
+    active: ReadSignal<View>,
+    view: View,
+) -> ReadSignal<chrono::DateTime<Utc>> {
+    let (seen, set_seen) = signal(clock.get_untracked());
+    Effect::new(move |_| {
+        let now = clock.get();
+        if active.get() == view {
+            set_seen.set(now);
         }
     });
     seen
