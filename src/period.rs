@@ -75,6 +75,32 @@ impl Period {
         }
     }
 
+    /// The period as instants, `[from, to)`, for `tz`: comparing instants is what a view
+    /// does per record (no zone arithmetic per record). `None` only for a period at the
+    /// calendar's ends.
+    pub fn instants<Tz: TimeZone>(self, tz: &Tz) -> Option<(DateTime<Utc>, DateTime<Utc>)> {
+        let (first, after) = match self {
+            Period::Month(m) => {
+                let next = m.step(1);
+                (
+                    NaiveDate::from_ymd_opt(m.year, m.month, 1)?,
+                    NaiveDate::from_ymd_opt(next.year, next.month, 1)?,
+                )
+            }
+            Period::Days { from, to } => (from, to.succ_opt()?),
+        };
+        let start = |d: NaiveDate| {
+            // Local midnight; where a zone skips midnight, the first moment after it.
+            let midnight = d.and_hms_opt(0, 0, 0)?;
+            (0..=4).find_map(|h| {
+                tz.from_local_datetime(&(midnight + chrono::Duration::hours(h)))
+                    .earliest()
+                    .map(|t| t.with_timezone(&Utc))
+            })
+        };
+        Some((start(first)?, start(after)?))
+    }
+
     /// The month shown, when the period is one.
     pub fn month(self) -> Option<Month> {
         match self {
@@ -164,6 +190,28 @@ mod tests {
         assert!(Period::days("2024-01-01", "2025-01-02")
             .unwrap_err()
             .contains("at most 367"));
+        // As instants: the same answers as `contains`, in either zone.
+        for zone in [east, FixedOffset::west_opt(10 * 3600).unwrap()] {
+            let (from, to) = p.instants(&zone).unwrap();
+            for t in [
+                "2026-11-02T13:59:59Z",
+                "2026-11-02T21:00:00Z",
+                "2026-11-03T10:00:00Z",
+                "2026-11-09T20:59:59Z",
+                "2026-11-10T09:59:59Z",
+                "2026-11-10T10:00:00Z",
+            ] {
+                let t = at(t);
+                assert_eq!(from <= t && t < to, p.contains(t, &zone), "{t} at {zone}");
+            }
+        }
+        let (from, to) = Period::Month(Month::parse("2026-12").unwrap())
+            .instants(&east)
+            .unwrap();
+        assert_eq!(
+            (from, to),
+            (at("2026-11-30T21:00:00Z"), at("2026-12-31T21:00:00Z"))
+        );
         let m = Period::month_of(at("2026-11-30T22:30:00Z"), &east);
         assert_eq!(
             (m.label(), m.step(-1).label()),

@@ -33,8 +33,9 @@ pub(super) fn ControlCharts(
                     .verdicts(&t.meta.id)
                     .map(|v| v.iter().map(|r| r.decision).collect())
                     .unwrap_or_default();
+                let within = super::runs::in_period(month);
                 let in_month: Vec<usize> = (0..h.runs.len())
-                    .filter(|&i| month.contains(h.runs[i].run_at, &Local))
+                    .filter(|&i| within(h.runs[i].run_at))
                     .collect();
                 let labels: Vec<String> = in_month
                     .iter()
@@ -140,11 +141,11 @@ fn level_stats(
         };
         view! { <tr><td>{label.to_string()}</td><td>{text}</td></tr> }
     };
-    let month = Local::now().format("%Y-%m").to_string();
-    let this_month = qcstats::by_month(results, &Local)
-        .into_iter()
-        .find(|(m, _)| *m == month)
-        .map(|(_, s)| s);
+    let now = crate::period::Period::month_of(Utc::now(), &Local);
+    let month = now.label();
+    let this_month = now
+        .instants(&Local)
+        .and_then(|(from, to)| qcstats::between(results, from, to));
     let target = match qcstats::choose_target(Some(insert), results) {
         Some(Target { source: TargetSource::Lab { n }, mean, sd }) => format!(
             "the lab's own target is available from {n} accepted results: mean {mean:.3}, SD {sd:.3} {unit} \

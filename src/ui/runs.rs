@@ -52,11 +52,9 @@ fn TestRuns(
 ) -> impl IntoView {
     let history = lab.control_history(&test.meta.id);
     let names: Vec<String> = history.levels.iter().map(|l| l.name.clone()).collect();
-    let run_dates: Vec<String> = history
-        .runs
-        .iter()
-        .map(|r| r.run_at.with_timezone(&Local).format("%d %b").to_string())
-        .collect();
+    // Run times, named as dates only where a reason cites them.
+    let run_dates: Vec<chrono::DateTime<chrono::Utc>> =
+        history.runs.iter().map(|r| r.run_at).collect();
     // Every run is judged with its whole history; only the chosen month's are drawn.
     let judged = super::judged().get_untracked().0;
     let test_id = test.meta.id.clone();
@@ -68,6 +66,7 @@ fn TestRuns(
     let names_for_rows = names.clone();
     let rows = move || {
         let month = period.get();
+        let within = in_period(month);
         let lab = &lab_for_rows;
         let (names, history_targets) = (&names_for_rows, &targets);
         match judged.verdicts(&test_id) {
@@ -76,7 +75,7 @@ fn TestRuns(
             .iter()
             .zip(&values)
             .zip(verdicts.iter().cloned())
-            .filter(|((run, _), _)| month.contains(run.run_at, &Local))
+            .filter(|((run, _), _)| within(run.run_at))
             .rev()
             .map(|((run, values), verdict)| {
                 let shown = results_text(values, history_targets);
@@ -104,7 +103,8 @@ fn TestRuns(
             history.runs.iter().map(|r| r.run_at).collect();
         move || {
             let month = period.get();
-            let n = runs.iter().filter(|t| month.contains(**t, &Local)).count();
+            let within = in_period(month);
+            let n = runs.iter().filter(|t| within(**t)).count();
             format!("{n} run(s) in {} of {total} recorded.", month.label())
         }
     };
@@ -234,16 +234,28 @@ fn results_text(values: &[Option<f64>], targets: &[qc::LevelTarget]) -> String {
         .join(" · ")
 }
 
-fn verdict_view(verdict: &RunVerdict, names: &[String], run_dates: &[String]) -> impl IntoView {
+/// Whether an instant falls in the period (in the PC's zone), by comparing instants.
+pub(super) fn in_period(p: Period) -> impl Fn(chrono::DateTime<chrono::Utc>) -> bool {
+    let window = p.instants(&Local);
+    move |t| window.is_some_and(|(from, to)| from <= t && t < to)
+}
+
+/// The decision and its reasons; a run the reasons cite is named by its date (`runs[r]`),
+/// or "this run" past the history (a new run not saved yet).
+fn verdict_view(
+    verdict: &RunVerdict,
+    names: &[String],
+    runs: &[chrono::DateTime<chrono::Utc>],
+) -> impl IntoView {
     let why: Vec<String> = verdict
         .violations
         .iter()
         .map(|v| {
             v.explain(names, |r| {
-                run_dates
-                    .get(r)
-                    .cloned()
-                    .unwrap_or_else(|| "this run".into())
+                runs.get(r).map_or_else(
+                    || "this run".into(),
+                    |t| t.with_timezone(&Local).format("%d %b").to_string(),
+                )
             })
         })
         .collect();
@@ -348,12 +360,7 @@ fn NewRun(
     };
     let names_for_inputs = names.clone();
     let names_for_verdict = names.clone();
-    let mut dates: Vec<String> = history
-        .runs
-        .iter()
-        .map(|r| r.run_at.with_timezone(&Local).format("%d %b").to_string())
-        .collect();
-    dates.push("this run".into());
+    let dates: Vec<chrono::DateTime<chrono::Utc>> = history.runs.iter().map(|r| r.run_at).collect();
     let code = test.code.clone();
     let unit = test.unit.clone();
     view! {
