@@ -1,6 +1,8 @@
 //! Timing of the engine's hot paths: a 4PL and a 5PL fit of the ryegrass dose–response
-//! set (24 points, the same curve `tools/bench-4pl.sh` times with scipy), and a year of
-//! two-level QC runs through the Westgard multirule set.
+//! set (24 points, the same curve `tools/bench-4pl.sh` times with scipy), linear and
+//! quadratic fits of NIST StRD Norris (36 points) and Pontius (40 points), the sets the
+//! same script times with numpy.polyfit, and a year of two-level QC runs through the
+//! multirule set.
 
 use criterion::{black_box, criterion_group, criterion_main, Criterion};
 use cuvette::engine::calibration::{fit, CalPoint, ModelKind, ReplicateUse, Weighting};
@@ -24,7 +26,37 @@ fn ryegrass() -> Vec<CalPoint> {
         .collect()
 }
 
+/// A NIST StRD set's (x, y) as calibration points (x = concentration).
+fn nist(name: &str) -> Vec<CalPoint> {
+    let dir = std::env::var("CUVETTE_REFERENCE")
+        .unwrap_or_else(|_| concat!(env!("CARGO_MANIFEST_DIR"), "/tests/reference").to_string());
+    let text = std::fs::read_to_string(format!("{dir}/nist/{name}.dat")).expect("NIST set");
+    let set = cuvette::verification::parse_strd(&text).expect("StRD");
+    set.x
+        .iter()
+        .zip(&set.y)
+        .map(|(&conc, &signal)| CalPoint { conc, signal })
+        .collect()
+}
+
 fn bench(c: &mut Criterion) {
+    for (name, model, set) in [
+        ("fit_linear_norris", ModelKind::Linear, "Norris"),
+        ("fit_quadratic_pontius", ModelKind::Quadratic, "Pontius"),
+    ] {
+        let pts = nist(set);
+        c.bench_function(name, |b| {
+            b.iter(|| {
+                fit(
+                    model,
+                    Weighting::None,
+                    ReplicateUse::Individual,
+                    black_box(&pts),
+                )
+                .expect("fit")
+            })
+        });
+    }
     let pts = ryegrass();
     c.bench_function("fit_4pl_ryegrass", |b| {
         b.iter(|| {
