@@ -1030,7 +1030,9 @@ fn logistic_fit(
         }
     };
     // The data-driven start first; a few starts around it only when it does not end
-    // in a sound optimum (the logistic surface has flat valleys).
+    // in a sound optimum (the logistic surface has flat valleys). "Sound" is our bound:
+    // converged, slope 0.05–50, mid-point within ten times the calibrators' span, 5PL
+    // asymmetry 0.05–20; anything else tries the other starts.
     let positive = x.iter().copied().filter(|&v| v > 0.0);
     let (lowest, highest) = (
         positive.clone().fold(f64::INFINITY, f64::min),

@@ -170,35 +170,54 @@ fn lifecycle_actions(m: &crate::lab::MaterialRecord, technician: ReadSignal<Stri
     view! { {middle}" "<DiscardButton id=id technician=technician /> }.into_any()
 }
 
+/// Change one material now, by the technician on duty: `change` gets the material, the
+/// time and the initials and returns the changed material and the trail's reason; a
+/// refusal is shown through `set_message`. The lab is read when the button is used.
+fn change_material(
+    trail: &super::Trail,
+    id: &str,
+    technician: ReadSignal<String>,
+    set_message: WriteSignal<Option<String>>,
+    change: impl FnOnce(
+        &crate::lab::MaterialRecord,
+        chrono::DateTime<Utc>,
+        &str,
+    ) -> Result<(crate::lab::MaterialRecord, String), String>,
+) {
+    let initials = match super::new_record(technician) {
+        Ok((meta, _)) => meta.by,
+        Err(e) => return set_message.set(Some(e)),
+    };
+    let Some(mut lab) = trail.current_lab() else {
+        return;
+    };
+    let Some(m) = lab.materials.iter_mut().find(|m| m.meta.id == id) else {
+        return set_message.set(Some("this material is no longer in the list".into()));
+    };
+    match change(m, Utc::now(), &initials) {
+        Ok((changed, reason)) => {
+            *m = changed;
+            trail.amend.run(super::Change {
+                lab,
+                reason: Some(reason),
+            });
+        }
+        Err(e) => set_message.set(Some(e)),
+    }
+}
+
 #[component]
 fn OpenButton(id: String, technician: ReadSignal<String>) -> impl IntoView {
     let trail = expect_context::<super::Trail>();
     let (message, set_message) = signal(None::<String>);
     let open = move |_| {
-        if let Err(e) = super::new_record(technician) {
-            return set_message.set(Some(e));
-        }
-        let Some(mut lab) = trail.current_lab() else {
-            return;
-        };
-        let now = Utc::now();
-        let Some(m) = lab.materials.iter_mut().find(|m| m.meta.id == id) else {
-            return set_message.set(Some("this material is no longer in the list".into()));
-        };
-        match m.opened(now) {
-            Ok(opened) => {
-                *m = opened;
-                let reason = format!(
-                    "opened {}",
-                    now.with_timezone(&Local).format("%Y-%m-%d %H:%M")
-                );
-                trail.amend.run(super::Change {
-                    lab,
-                    reason: Some(reason),
-                });
-            }
-            Err(e) => set_message.set(Some(e)),
-        }
+        change_material(&trail, &id, technician, set_message, |m, now, _| {
+            let reason = format!(
+                "opened {}",
+                now.with_timezone(&Local).format("%Y-%m-%d %H:%M")
+            );
+            m.opened(now).map(|opened| (opened, reason))
+        })
     };
     view! {
         <button data-testid="open-material" on:click=open>"open now"</button>
@@ -212,27 +231,11 @@ fn DiscardButton(id: String, technician: ReadSignal<String>) -> impl IntoView {
     let (reason, set_reason) = signal(String::new());
     let (message, set_message) = signal(None::<String>);
     let discard = move |_| {
-        let initials = match super::new_record(technician) {
-            Ok((meta, _)) => meta.by,
-            Err(e) => return set_message.set(Some(e)),
-        };
-        let Some(mut lab) = trail.current_lab() else {
-            return;
-        };
-        let Some(m) = lab.materials.iter_mut().find(|m| m.meta.id == id) else {
-            return set_message.set(Some("this material is no longer in the list".into()));
-        };
         let why = reason.get_untracked();
-        match m.discard(Utc::now(), &initials, &why) {
-            Ok(gone) => {
-                *m = gone;
-                trail.amend.run(super::Change {
-                    lab,
-                    reason: Some(format!("discarded: {}", why.trim())),
-                });
-            }
-            Err(e) => set_message.set(Some(e)),
-        }
+        change_material(&trail, &id, technician, set_message, |m, now, initials| {
+            m.discard(now, initials, &why)
+                .map(|gone| (gone, format!("discarded: {}", why.trim())))
+        })
     };
     view! {
         <details class="discard">
@@ -250,30 +253,15 @@ fn ThawButton(id: String, technician: ReadSignal<String>) -> impl IntoView {
     let trail = expect_context::<super::Trail>();
     let (message, set_message) = signal(None::<String>);
     let thaw = move |_| {
-        if let Err(e) = super::new_record(technician) {
-            return set_message.set(Some(e));
-        }
-        let Some(mut lab) = trail.current_lab() else {
-            return;
-        };
-        let now = Utc::now();
-        let Some(m) = lab.materials.iter_mut().find(|m| m.meta.id == id) else {
-            return set_message.set(Some("this material is no longer in the list".into()));
-        };
-        match stability::thaw(&m.stability, now) {
-            Ok(thawed) => {
-                m.stability = thawed;
-                let reason = format!(
-                    "aliquot thawed {}",
-                    now.with_timezone(&Local).format("%Y-%m-%d %H:%M")
-                );
-                trail.amend.run(super::Change {
-                    lab,
-                    reason: Some(reason),
-                });
-            }
-            Err(e) => set_message.set(Some(e.0)),
-        }
+        change_material(&trail, &id, technician, set_message, |m, now, _| {
+            let mut thawed = m.clone();
+            thawed.stability = stability::thaw(&m.stability, now).map_err(|e| e.0)?;
+            let reason = format!(
+                "aliquot thawed {}",
+                now.with_timezone(&Local).format("%Y-%m-%d %H:%M")
+            );
+            Ok((thawed, reason))
+        })
     };
     view! {
         <button data-testid="thaw" on:click=thaw>"thaw now"</button>
