@@ -8,6 +8,7 @@ pub mod board;
 #[cfg(not(target_arch = "wasm32"))]
 pub mod calc;
 pub mod corrective;
+pub mod demo;
 pub mod due;
 pub mod engine;
 pub mod entry;
