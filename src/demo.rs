@@ -41,7 +41,7 @@ use crate::lab::{
 };
 
 /// The demo lab's name, shown on every screen with the demo mark.
-pub const LAB_NAME: &str = "Ndovu Hill District Hospital lab (DEMO, invented data)";
+pub const LAB_NAME: &str = "Ndovu Hill Hospital lab (DEMO, invented)";
 
 /// Days of history, the last one being the story's day.
 pub const DAYS: i64 = 91;
@@ -182,17 +182,17 @@ fn plans() -> Vec<TestPlan> {
             valid_days: 7,
             decimals: 1,
             levels: vec![
-                normal("KC-N-2608", 95.0, 2.8),
-                abnormal("KC-A-2608", 265.0, 6.5),
+                normal("DQ-N-2611", 95.0, 2.8),
+                abnormal("DQ-A-2611", 265.0, 6.5),
             ],
             calibrators: &[100.0],
             sensitivity: (0.0042, 0.0),
             blank: 0.045,
             blank_limit: 0.08,
-            calibrated_on: schedule(-4, 7, &[x, -39]),
+            calibrated_on: schedule(-4, 7, &[x]),
             cal_minute: 7 * 60,
             qc_minute: 7 * 60 + 50,
-            reagent: Some("Glucose reagent (GOD-PAP)"),
+            reagent: Some("Glucose reagent R1"),
         },
         TestPlan {
             code: "UREA",
@@ -208,8 +208,8 @@ fn plans() -> Vec<TestPlan> {
             valid_days: 7,
             decimals: 1,
             levels: vec![
-                normal("KC-N-2608", 32.0, 1.6),
-                abnormal("KC-A-2608", 110.0, 4.5),
+                normal("DQ-N-2611", 32.0, 1.6),
+                abnormal("DQ-A-2611", 110.0, 4.5),
             ],
             calibrators: &[50.0],
             sensitivity: (0.0036, 0.0),
@@ -234,8 +234,8 @@ fn plans() -> Vec<TestPlan> {
             valid_days: 7,
             decimals: 2,
             levels: vec![
-                normal("KC-N-2608", 1.05, 0.05),
-                abnormal("KC-A-2608", 4.6, 0.18),
+                normal("DQ-N-2611", 1.05, 0.05),
+                abnormal("DQ-A-2611", 4.6, 0.18),
             ],
             calibrators: &[2.0],
             sensitivity: (0.056, 0.0),
@@ -293,8 +293,8 @@ fn plans() -> Vec<TestPlan> {
             valid_days: 14,
             decimals: 1,
             levels: vec![
-                normal("KC-N-2608", 6.8, 0.15),
-                abnormal("KC-A-2608", 4.6, 0.12),
+                normal("DQ-N-2611", 6.8, 0.15),
+                abnormal("DQ-A-2611", 4.6, 0.12),
             ],
             calibrators: &[2.0, 4.0, 8.0],
             sensitivity: (0.052, 0.0),
@@ -319,8 +319,8 @@ fn plans() -> Vec<TestPlan> {
             valid_days: 14,
             decimals: 1,
             levels: vec![
-                normal("KC-N-2608", 4.2, 0.12),
-                abnormal("KC-A-2608", 2.6, 0.10),
+                normal("DQ-N-2611", 4.2, 0.12),
+                abnormal("DQ-A-2611", 2.6, 0.10),
             ],
             calibrators: &[1.0, 2.5, 4.0, 5.5],
             sensitivity: (0.150, -0.0055),
@@ -345,8 +345,8 @@ fn plans() -> Vec<TestPlan> {
             valid_days: 7,
             decimals: 2,
             levels: vec![
-                normal("KC-N-2608", 1.0, 0.06),
-                abnormal("KC-A-2608", 5.8, 0.25),
+                normal("DQ-N-2611", 1.0, 0.06),
+                abnormal("DQ-A-2611", 5.8, 0.25),
             ],
             calibrators: &[5.0],
             sensitivity: (0.048, 0.0),
@@ -372,8 +372,8 @@ fn plans() -> Vec<TestPlan> {
             valid_days: 30,
             decimals: 0,
             levels: vec![
-                normal("KC-N-2608", 38.0, 2.4),
-                abnormal("KC-A-2608", 142.0, 6.0),
+                normal("DQ-N-2611", 38.0, 2.4),
+                abnormal("DQ-A-2611", 142.0, 6.0),
             ],
             calibrators: &[118.0],
             sensitivity: (0.000_57, 0.0),
@@ -398,8 +398,8 @@ fn plans() -> Vec<TestPlan> {
             valid_days: 30,
             decimals: 0,
             levels: vec![
-                normal("KC-N-2608", 35.0, 2.2),
-                abnormal("KC-A-2608", 160.0, 7.0),
+                normal("DQ-N-2611", 35.0, 2.2),
+                abnormal("DQ-A-2611", 160.0, 7.0),
             ],
             calibrators: &[125.0],
             sensitivity: (0.000_57, 0.0),
@@ -424,8 +424,8 @@ fn plans() -> Vec<TestPlan> {
             valid_days: 30,
             decimals: 0,
             levels: vec![
-                normal("KC-N-2608", 95.0, 5.0),
-                abnormal("KC-A-2608", 390.0, 15.0),
+                normal("DQ-N-2611", 95.0, 5.0),
+                abnormal("DQ-A-2611", 390.0, 15.0),
             ],
             calibrators: &[250.0],
             sensitivity: (0.000_37, 0.0),
@@ -446,6 +446,9 @@ const CROSSOVER_DAY: i64 = -7;
 /// its age (absorbance per day, an invented deterioration).
 const CHOL_BOTTLES: [i64; 3] = [-90, -50, -6];
 const CHOL_BLANK_PER_DAY: f64 = 0.0013;
+
+/// The morning glucose was calibrated with a calibrator past its stability (a 2-2s).
+const GLU_2_2S_DAY: i64 = -18;
 
 /// QC results the story sets (z per level, set-up order; `None`: not run).
 struct Scripted {
@@ -479,7 +482,7 @@ const SCRIPTED: &[Scripted] = &[
     // Glucose 2-2s on a calibration with a calibrator past its stability.
     Scripted {
         code: "GLU",
-        day: -39,
+        day: GLU_2_2S_DAY,
         z: &[Some(2.3), Some(2.5)],
     },
     // Urea R-4s: a scratched cuvette.
@@ -511,7 +514,7 @@ const SCRIPTED: &[Scripted] = &[
 const ACTIONS: &[(&str, i64, &str, &str)] = &[
     (
         "GLU",
-        -39,
+        GLU_2_2S_DAY,
         "Both levels above 2 SD on the same side after this morning's calibration; the \
          calibrator vial had been open 9 days (its stability is 7)",
         "Fresh calibrator vial reconstituted, glucose recalibrated, controls re-run",
@@ -720,7 +723,7 @@ type Bottles = Vec<(&'static str, i64, String)>;
 fn reagent_bottles(b: &mut Builder) -> Bottles {
     let mut out = Vec::new();
     // Glucose: a bottle every 30 days of lot GG-2607, then the new lot GG-2611.
-    let glucose = "Glucose reagent (GOD-PAP)";
+    let glucose = "Glucose reagent R1";
     let mut previous: Option<String> = None;
     for (day, lot) in [
         (-90, "GG-2607"),
@@ -821,8 +824,8 @@ fn controls_and_calibrators(b: &mut Builder) {
     ];
     let id = b.material(
         MaterialKind::Control,
-        "Chemistry control, normal (lyophilised)",
-        "KC-N-2608",
+        "Multi-analyte control, normal (lyophilised)",
+        "DQ-N-2611",
         normal,
         at,
         Builder::who(-6),
@@ -830,8 +833,8 @@ fn controls_and_calibrators(b: &mut Builder) {
     reconstituted(b, &id, 5.0, "distilled water", "");
     let id = b.material(
         MaterialKind::Control,
-        "Chemistry control, abnormal (lyophilised)",
-        "KC-A-2608",
+        "Multi-analyte control, abnormal (lyophilised)",
+        "DQ-A-2611",
         opened("2027-02-28", at, 168.0),
         at,
         Builder::who(-6),
@@ -869,7 +872,7 @@ fn controls_and_calibrators(b: &mut Builder) {
     // thawing), two still in the freezer.
     let frozen_at = b.at(-20, 9 * 60);
     for k in 0..3 {
-        let thawed = (k == 0).then(|| b.at(0, 6 * 60 + 30));
+        let thawed = (k == 0).then(|| b.at(0, 6 * 60 + 20));
         let m = Material {
             expiry: ExpiryDate::Month {
                 year: 2027,
@@ -888,10 +891,11 @@ fn controls_and_calibrators(b: &mut Builder) {
             }),
             analytes: Vec::new(),
         };
+        let name = format!("Multi-analyte calibrator, frozen aliquot {}/3", k + 1);
         let id = b.material(
             MaterialKind::Calibrator,
-            "Chemistry calibrator, frozen aliquot",
-            "KCAL-2607",
+            &name,
+            "DC-0907",
             m,
             frozen_at,
             Builder::who(-20),
@@ -929,8 +933,8 @@ fn calibrations(b: &mut Builder, p: &TestPlan, test_id: &str, reagents: &Bottles
     // The lamp: the photometer's sensitivity steps a little at the change.
     let mut accepted: Option<calibration::Curve> = None;
     for &day in &p.calibrated_on {
-        // Glucose on day −39: recalibrated after the 2-2s (see ACTIONS).
-        let rerun_glucose = p.code == "GLU" && day == -39;
+        // Glucose on the day of its 2-2s: recalibrated after it (see ACTIONS).
+        let rerun_glucose = p.code == "GLU" && day == GLU_2_2S_DAY;
         let mut tries: Vec<(u32, f64)> = vec![(p.cal_minute, 1.0)];
         if rerun_glucose {
             // The morning's calibration read a calibrator past its stability (reads

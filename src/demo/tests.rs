@@ -118,8 +118,8 @@ fn the_rejections_are_exactly_the_story_s() {
         .collect();
     let want = vec![
         ("UREA".to_string(), vec![Rule::RangeFourS]),
-        ("GLU".to_string(), vec![Rule::TwoTwoS]),
         ("CREA".to_string(), vec![Rule::OneThreeS]),
+        ("GLU".to_string(), vec![Rule::TwoTwoS]),
         ("ALT".to_string(), vec![Rule::OneThreeS]),
         ("GLU".to_string(), vec![Rule::FourOneS]),
     ];
@@ -161,7 +161,7 @@ fn glucose_4_1s_comes_after_a_new_reagent_lot() {
     let lots: Vec<(&str, DateTime<Utc>)> = lab
         .materials
         .iter()
-        .filter(|m| m.name.starts_with("Glucose reagent"))
+        .filter(|m| m.name.starts_with("Glucose reagent R1"))
         .map(|m| (m.lot.as_str(), m.meta.created_at))
         .collect();
     let new_lot = lots
@@ -278,7 +278,7 @@ fn the_materials_tell_their_part() {
         stability::Limit::MakerExpiry
     );
     // The multi-analyte control is usable, but its ALT is past its own stability.
-    let control = in_use().find(|m| m.lot == "KC-N-2608").unwrap();
+    let control = in_use().find(|m| m.lot == "DQ-N-2611").unwrap();
     let r = report(control);
     assert_ne!(r.material.state, StabilityState::Expired);
     let alt = r.analytes.iter().find(|(a, _)| a == "ALT").unwrap();

@@ -124,9 +124,6 @@ pub(super) fn PeriodPicker(
     }
 }
 
-/// The demo lab, embedded at build time from `demo-data/`.
-pub const DEMO_LAB: &str = include_str!("../../demo-data/demo-lab.json");
-
 /// How long before "now" the demo lab's newest record is placed when it is loaded.
 const DEMO_LEAD: chrono::Duration = chrono::Duration::minutes(3);
 
@@ -484,16 +481,9 @@ fn Bench() -> impl IntoView {
             }
             let (mut opened, notes) = store::shelf::open(target, db).await;
             if fresh_demo {
-                match Lab::from_json(DEMO_LAB) {
-                    Ok(mut demo) => {
-                        // Keep the invented history current: its newest record minutes ago.
-                        demo.place_before(Utc::now(), DEMO_LEAD);
-                        opened.found(&demo, Utc::now(), "DEMO");
-                    }
-                    Err(e) => {
-                        return set_problem.set(Some(format!("the demo lab is damaged: {e}")))
-                    }
-                }
+                // The invented history, kept current: its newest record minutes ago.
+                let demo = crate::demo::demo_lab_before(Utc::now(), DEMO_LEAD);
+                opened.found(&demo, Utc::now(), "DEMO");
             }
             let unsaved = !opened.unsaved.is_empty();
             shelf.set_value(std::rc::Rc::new(std::cell::RefCell::new(opened)));

@@ -83,8 +83,9 @@ pub fn SetupView(
         <section class="card">
             <h3>"Demo lab"</h3>
             <p>
-                "Load an invented district-hospital lab with three tests, calibrations, QC history \
-                 and materials, to try every view. It is kept apart from your lab's own records: \
+                "Load an invented hospital lab: ten tests (end-point, fixed-time and kinetic) with \
+                 thirteen weeks of calibrations, QC runs, corrective actions, materials and \
+                 instrument checks, ending this morning, to try every view. It is kept apart from your lab's own records: \
                  \"Back to my lab\" returns to them unchanged. Loading it again starts it afresh."
             </p>
             <button data-testid="load-demo" on:click=move |_| load_demo.run(())>"Load demo lab"</button>

@@ -90,12 +90,12 @@ test("a calibration with a calibrator past its stability is refused until acknow
     await card.locator('[data-testid="calibration-blank"]').fill("0.052 0.053");
     await card.locator('[data-testid="calibration-readings"]').fill("100: 0.470 0.474");
     assert.match(await card.locator('[data-testid="calibration-verdict"]').innerText(), /^accepted/);
-    await card.locator('label:has-text("Multi-analyte calibrator, frozen aliquot") [data-testid="material-used"]').check();
+    await card.locator('label:has-text("Multi-analyte calibrator, frozen aliquot 1/3") [data-testid="material-used"]').check();
     await card.locator('label:has-text("Glucose reagent R1") [data-testid="material-used"]').check();
     const warning = card.locator('[data-testid="material-warnings"]');
     const lines = await warning.locator("li").allInnerTexts();
     assert.equal(lines.length, 1, "the reagent is within its stability");
-    assert.match(lines[0], /^Multi-analyte calibrator, frozen aliquot lot DC-0907: past its stability after thawing \(2026-11-27 \d\d:\d\d\)$/);
+    assert.match(lines[0], /^Multi-analyte calibrator, frozen aliquot 1\/3 lot DC-0907: past its stability after thawing \(2026-11-27 \d\d:\d\d\)$/);
     await card.locator('[data-testid="save-calibration"]').click();
     assert.match(await card.locator('[data-testid="calibration-message"]').innerText(), /past its stability, not opened or discarded: read the warning and tick the box/);
     assert.equal(await card.locator('[data-testid="calibration-row"]').count(), before);

@@ -73,7 +73,7 @@ test("the day's records of the demo's last day: one JSON that checks, and a CSV 
     // Today (the fixed clock's 2026-11-27 in Nairobi) is the demo's last day.
     assert.equal(await byTestId(page, "export-day").inputValue(), "2026-11-27");
     const [json] = await downloads(page, byTestId(page, "export-day-json"), 1);
-    assert.equal(json.name, "cuvette-demo-district-hospital-lab-invented-data-day-2026-11-27.json");
+    assert.equal(json.name, "cuvette-ndovu-hill-hospital-lab-demo-invented-day-2026-11-27.json");
     const file = JSON.parse(json.text);
     assert.equal(file.format, "cuvette-records");
     assert.equal(file.scope, "day");
@@ -83,7 +83,7 @@ test("the day's records of the demo's last day: one JSON that checks, and a CSV 
     assert.match(summary.chain, /^intact/);
     assert.ok(summary.records["QC run"] >= 3, JSON.stringify(summary));
     const csvs = await downloads(page, byTestId(page, "export-day-csv"), 7);
-    const byName = Object.fromEntries(csvs.map((c) => [c.name.replace(/^cuvette-demo-district-hospital-lab-invented-data-|-2026-11-27\.csv$/g, ""), c.text]));
+    const byName = Object.fromEntries(csvs.map((c) => [c.name.replace(/^cuvette-ndovu-hill-hospital-lab-demo-invented-|-2026-11-27\.csv$/g, ""), c.text]));
     assert.deepEqual(Object.keys(byName).sort(), ["calibrations", "corrective-actions", "instrument-log", "materials", "patient-results", "qc-results", "trail"]);
     const qc = byName["qc-results"].trim().split("\r\n");
     assert.equal(qc[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,after_corrective_action,acknowledged_warnings,by,record_id");
@@ -230,7 +230,7 @@ test("the printed day sheet: one page per section with the lab, the date, who wo
     const pages = Number(/Pages:\s+(\d+)/.exec(execFileSync("pdfinfo", [pdf]).toString())[1]);
     assert.ok(pages >= 7, `${pages} pages`);
     const text = execFileSync("pdftotext", ["-layout", pdf, "-"]).toString();
-    for (const want of ["Demo district hospital lab", "DEMO LAB", "2026-11-27", "QC results", "Corrective actions", "Calibrations", "Patient results", "Materials received, opened or discarded", "Instrument log", "Trail"]) {
+    for (const want of ["Ndovu Hill Hospital lab", "DEMO LAB", "2026-11-27", "QC results", "Corrective actions", "Calibrations", "Patient results", "Materials received, opened or discarded", "Instrument log", "Trail"]) {
       assert.ok(text.includes(want), `the sheet lacks ${want}`);
     }
     assert.match(text, /Who worked: [A-Z]{2}/);
@@ -291,7 +291,7 @@ test("extreme numbers typed into every numeric field of every form: the page sta
     ({ context, page, problems } = await openApp(profile));
     await waitSaved(page);
     assert.equal(await byTestId(page, "recovery").count(), 0);
-    assert.match(await byTestId(page, "lab-name").innerText(), /Demo district hospital lab/);
+    assert.match(await byTestId(page, "lab-name").innerText(), /Ndovu Hill Hospital lab/);
     await byTestId(page, "nav-materials").click();
     assert.ok(await byTestId(page, "material-row").count() >= 4);
     assert.deepEqual(problems, []);

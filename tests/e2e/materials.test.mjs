@@ -122,7 +122,7 @@ test("aliquots are frozen from a control and one is thawed, once", async () => {
     await byTestId(page, "nav-materials").click();
     const rows = byTestId(page, "material-row");
     const before = await rows.count();
-    const thawedDemo = rows.filter({ hasText: "Multi-analyte calibrator, frozen aliquot" });
+    const thawedDemo = rows.filter({ hasText: "Multi-analyte calibrator, frozen aliquot 1/3" });
     assert.equal(await thawedDemo.locator('[data-testid="thaw"]').count(), 0);
     const control = rows.filter({ hasText: "Multi-analyte control, normal (lyophilised)", has: page.locator('[data-testid="freeze-aliquots"]') }).first();
     await control.locator('[data-testid="freeze-aliquots"]').click();

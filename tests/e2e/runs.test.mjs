@@ -23,8 +23,8 @@ test("a rejected run asks for a corrective action before its re-run, which is ju
     const before = await card.locator('[data-testid="qc-run"]').count();
     const newestRow = () => byTestId(page, "runs-GLU").locator('[data-testid="qc-run"]').first();
     // The glucose 2-2s episode of the demo has its actions, and each re-run names one.
-    assert.ok((await card.locator('[data-testid="action-taken"]').count()) >= 2);
-    assert.ok((await card.locator('[data-testid="rerun-after"]').count()) >= 2);
+    assert.ok((await card.locator('[data-testid="action-taken"]').count()) >= 1);
+    assert.ok((await card.locator('[data-testid="rerun-after"]').count()) >= 1);
     assert.equal(await newestRow().locator('[data-testid="action-open"]').count(), 1);
     await card.locator('[data-testid="new-run-GLU"]').click();
     assert.match(await card.locator('[data-testid="rerun-blocked"]').innerText(), /^Not yet: the test's last run was rejected/);
@@ -167,8 +167,9 @@ test("the QC runs view shows the chosen month or days only", async () => {
     const rows = await card.locator('[data-testid="qc-run"] td:first-child').allInnerTexts();
     assert.ok(rows.length > 0 && rows.every((r) => r.startsWith("2026-11-")), rows.join("\n"));
     await byTestId(page, "runs-period-previous").click();
-    await page.waitForFunction(() => /^0 run\(s\) in 2026-10 of /.test(document.querySelector('[data-testid="runs-GLU"] [data-testid="runs-shown"]').innerText));
-    assert.equal(await card.locator('[data-testid="qc-run"]').count(), 0);
+    await page.waitForFunction(() => /^31 run\(s\) in 2026-10 of /.test(document.querySelector('[data-testid="runs-GLU"] [data-testid="runs-shown"]').innerText));
+    const october = await card.locator('[data-testid="qc-run"] td:first-child').allInnerTexts();
+    assert.ok(october.length === 31 && october.every((r) => r.startsWith("2026-10-")), october.join("\n"));
     await byTestId(page, "runs-period-next").click();
     await page.waitForFunction(() => /in 2026-11 of/.test(document.querySelector('[data-testid="runs-GLU"] [data-testid="runs-shown"]').innerText));
     // The newest run keeps the decision the whole history gives it.

@@ -84,17 +84,22 @@ test("the demo lab loads from the embedded file and draws control charts", async
   assert.match(await note.innerText(), /^\d{4}-\d\d-\d\d \d\d:\d\d: [\d.]+ mg\/dL, z [+-]\d\.\d\d — run (accept|warning|reject)/);
   // The warned and rejected points are listed in words beneath the chart.
   assert.match(await byTestId(page, "lj-flagged").first().innerText(), /4-1s \(reject, .*4 consecutive results beyond the same 1 SD limit/);
-  // This month's runs, named by their dates on the axis; the month before has none.
-  assert.match(await byTestId(page, "view-charts").locator("figure.chart figcaption").first().innerText(), /^GLU .* — 2026-11$/);
+  // This month's runs, named by their dates on the axis; the month before has its own;
+  // four months back, before the demo's history, has none.
+  const caption = () => byTestId(page, "view-charts").locator("figure.chart figcaption").first().innerText();
+  assert.match(await caption(), /^GLU .* — 2026-11$/);
   await byTestId(page, "charts-period-previous").click();
+  await page.waitForFunction(() => / — 2026-10$/.test(document.querySelector("figure.chart figcaption")?.innerText ?? ""));
+  for (let k = 0; k < 3; k++) await byTestId(page, "charts-period-previous").click();
   await page.waitForFunction(() => document.querySelectorAll('[data-testid="lj-chart"]').length === 0);
   assert.match(await byTestId(page, "view-charts").innerText(), /No control results to chart in this period/);
   await byTestId(page, "charts-period-this").click();
   await charts.first().waitFor();
-  // Statistics beside each chart: the demo has 26 runs; those of rejected runs do not
-  // count, and 20 accepted results make the lab's own target available.
+  // Statistics beside each chart: November has 28 glucose runs and the history 92; the
+  // rejected ones (2) do not count, and 20 accepted results make the lab's own target
+  // available.
   const stats = await byTestId(page, "level-stats").first().innerText();
-  assert.match(stats, /All accepted\s+n (2[0-5]),/);
+  assert.match(stats, /This month \(2026-11\)\s+n 26,.*All accepted\s+n 90,/s);
   assert.match(stats, /lab's own target is available/);
   assert.deepEqual(problems, []);
   await waitSaved(page);
@@ -117,8 +122,8 @@ test("QC runs show the engine's decision for every run of the demo lab", async (
     await byTestId(page, "nav-runs").click();
     const runs = byTestId(page, "qc-run");
     await runs.first().waitFor();
-    // 26 invented runs for each of the 3 demo tests.
-    assert.equal(await runs.count(), 78);
+    // This month's runs of the 10 demo tests: 27 days each, and 3 re-runs.
+    assert.equal(await runs.count(), 273);
     const decisions = await byTestId(page, "qc-decision").allInnerTexts();
     assert.ok(decisions.every((d) => /^(accept|warning|reject)/.test(d)), decisions.join("|"));
     assert.ok(decisions.some((d) => d.startsWith("reject")), "the demo's shift should be rejected");
@@ -157,7 +162,7 @@ test("records backed up on one PC import on another, and a bad file loses nothin
     page.waitForEvent("download"),
     byTestId(page, "export-backup").click(),
   ]);
-  assert.match(download.suggestedFilename(), /^cuvette-demo-district-hospital-lab-invented-data-backup-\d{4}-\d{2}-\d{2}\.json$/);
+  assert.match(download.suggestedFilename(), /^cuvette-ndovu-hill-hospital-lab-demo-invented-backup-\d{4}-\d{2}-\d{2}\.json$/);
   await download.saveAs(saved);
   assert.deepEqual(problems, []);
   await context.close();
@@ -196,7 +201,7 @@ test("today's board: each test's calibration and QC state, and materials to act 
     await byTestId(page, "load-demo").click();
     await byTestId(page, "nav-today").click();
     const rows = byTestId(page, "today-test");
-    assert.equal(await rows.count(), 3);
+    assert.equal(await rows.count(), 10);
     // The demo's glucose history ends in a shift that the multirule procedure rejects,
     // and the demo is moved so that this run was this morning.
     assert.match(await rows.first().innerText(), /GLU.*reject: hold patient results/s);
@@ -218,13 +223,14 @@ test("QC results and calibrations export as CSV for a spreadsheet", async () => 
       page.waitForEvent("download"),
       byTestId(page, "export-qc-csv").click(),
     ]);
-    assert.match(download.suggestedFilename(), /^cuvette-demo-district-hospital-lab-invented-data-qc-results-\d{4}-\d{2}-\d{2}\.csv$/);
+    assert.match(download.suggestedFilename(), /^cuvette-ndovu-hill-hospital-lab-demo-invented-qc-results-\d{4}-\d{2}-\d{2}\.csv$/);
     const path = join(mkdtempSync(join(tmpdir(), "csv-")), "qc.csv");
     await download.saveAs(path);
     const lines = readFileSync(path, "utf8").trim().split("\r\n");
     assert.equal(lines[0], "test,level,lot,run_at,value,unit,target_mean,target_sd,z,decision,rules_broken,after_corrective_action,acknowledged_warnings,by,record_id");
-    // 3 demo tests × 26 runs × 2 levels, one creatinine level not run once.
-    assert.equal(lines.length - 1, 155);
+    // 10 demo tests × 91 days × 2 levels, 4 re-runs, a third cholesterol
+    // level (the new lot, 8 days), one creatinine level not run once.
+    assert.equal(lines.length - 1, 1835);
     assert.ok(lines.slice(1).every((l) => /,(accept|warning|reject),/.test(l)));
     // The demo's re-runs name the corrective action they follow.
     assert.ok(lines.filter((l) => /,[0-9a-f-]{36},,[A-Z]{2},[0-9a-f-]{36}$/.test(l)).length >= 4);
