@@ -205,7 +205,8 @@ pub(super) fn TodayBoard(
                         <button data-testid="print-today" on:click=print>"Print today's sheet"</button>
                     </p>
                     {clock_line}
-                    {lots_view}
+                    {actions_view}
+                    {due_view}
                     <section class="card wide">
                         <h3>{format!("Tests — {}", today.format("%Y-%m-%d"))}</h3>
                         <p data-testid="today-temperature">{temperature}</p>
@@ -215,8 +216,7 @@ pub(super) fn TodayBoard(
                             <tbody>{tests}</tbody>
                         </table>
                     </section>
-                    {due_view}
-                    {actions_view}
+                    {lots_view}
                     <section class="card wide">
                         <h3>"Materials that need attention"</h3>
                         <Show when=move || no_attention>
