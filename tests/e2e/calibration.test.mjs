@@ -9,6 +9,7 @@ test("a new glucose calibration is fitted, judged, saved and kept", async () => 
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "nav-calibration").click();
     const card = byTestId(page, "calibration-GLU");
     const before = await card.locator('[data-testid="calibration-row"]').count();

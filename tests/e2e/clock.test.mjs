@@ -22,6 +22,7 @@ for (const c of CASES) {
     try {
       await byTestId(page, "nav-setup").click();
       await byTestId(page, "load-demo").click();
+      await byTestId(page, "demo-banner").waitFor();
       await byTestId(page, "initials").fill("qa");
       await byTestId(page, "initials").press("Enter");
       await byTestId(page, "nav-today").click();

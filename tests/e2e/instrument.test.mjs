@@ -9,6 +9,7 @@ test("a reaction temperature outside the limits is recorded and flagged", async 
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "initials").fill("pn");
     await byTestId(page, "initials").press("Enter");
     await byTestId(page, "nav-instrument").click();
@@ -35,6 +36,7 @@ test("a photometer reading near zero is shown to 4 decimals, never as -0", async
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "initials").fill("pn");
     await byTestId(page, "initials").press("Enter");
     await byTestId(page, "nav-instrument").click();
@@ -60,6 +62,7 @@ test("a photometer check outside its standard's tolerance fails and shows on the
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "initials").fill("pc");
     await byTestId(page, "initials").press("Enter");
     await byTestId(page, "standards-example").click();

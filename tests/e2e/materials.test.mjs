@@ -73,6 +73,7 @@ test("a control past its stability for the test's analyte is refused until ackno
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "initials").fill("mk");
     await byTestId(page, "initials").press("Enter");
     await waitSaved(page);
@@ -116,6 +117,7 @@ test("aliquots are frozen from a control and one is thawed, once", async () => {
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "initials").fill("fa");
     await byTestId(page, "initials").press("Enter");
     await waitSaved(page);

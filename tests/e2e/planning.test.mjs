@@ -13,6 +13,7 @@ test("rejection chances for each test's rules: computed in slices, rising with t
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await waitSaved(page);
     await byTestId(page, "nav-charts").click();
     const glu = byTestId(page, "planning-GLU");
@@ -53,6 +54,7 @@ test("the monthly QC review: each level's statistics, bias and SDI, and the rule
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await waitSaved(page);
     // The lab sets glucose's quality goal: an allowable total error of 8 %.
     await byTestId(page, "initials").fill("qr");
@@ -127,6 +129,7 @@ test("a new control lot run beside the old one: the board counts its results tow
     await byTestId(page, "initials").press("Enter");
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await waitSaved(page);
     await byTestId(page, "new-level-GLU").click();
     const form = page.locator('details:has([data-testid="new-level-GLU"])');

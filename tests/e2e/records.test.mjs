@@ -202,6 +202,7 @@ test("a corrected target keeps its earlier version and reason; a void needs a re
     await initials(page, "sv");
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await waitSaved(page);
     const level = byTestId(page, "setup-level").first();
     await level.locator('[data-testid="correct-level"]').click();

@@ -10,6 +10,7 @@ test("a rejected run asks for a corrective action before its re-run, which is ju
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "initials").fill("qa");
     await byTestId(page, "initials").press("Enter");
     // The board leads to the one rejection without an action: glucose, this morning, 4-1s.
@@ -85,6 +86,7 @@ test("an accepted re-run after the corrective action releases the patient result
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "initials").fill("qa");
     await byTestId(page, "initials").press("Enter");
     await byTestId(page, "nav-runs").click();
@@ -126,6 +128,7 @@ test("patient samples go through the calibration in use and are held when QC rej
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "nav-runs").click();
     const card = byTestId(page, "runs-GLU");
     await card.locator('[data-testid="samples-GLU"]').click();

@@ -119,6 +119,7 @@ test("QC runs show the engine's decision for every run of the demo lab", async (
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "nav-runs").click();
     const runs = byTestId(page, "qc-run");
     await runs.first().waitFor();
@@ -156,6 +157,7 @@ test("records backed up on one PC import on another, and a bad file loses nothin
   let { context, page, problems } = await openApp(newProfile());
   await byTestId(page, "nav-setup").click();
   await byTestId(page, "load-demo").click();
+  await byTestId(page, "demo-banner").waitFor();
   await byTestId(page, "nav-records").click();
   const summary = await byTestId(page, "records-summary").innerText();
   const [download] = await Promise.all([
@@ -199,6 +201,7 @@ test("today's board: each test's calibration and QC state, and materials to act 
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "nav-today").click();
     const rows = byTestId(page, "today-test");
     assert.equal(await rows.count(), 10);
@@ -218,6 +221,7 @@ test("QC results and calibrations export as CSV for a spreadsheet", async () => 
   try {
     await byTestId(page, "nav-setup").click();
     await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
     await byTestId(page, "nav-records").click();
     const [download] = await Promise.all([
       page.waitForEvent("download"),
