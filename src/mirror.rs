@@ -394,6 +394,39 @@ mod tests {
         assert_eq!(kv.map.len(), p2.chunks.len() + 1);
     }
 
+    /// A one-character change to a stored chunk is refused or, where it only touches
+    /// bits the data does not depend on (the deflate stream's end padding, a back
+    /// reference to an equal earlier string), reads back the same entries: never other
+    /// entries. The zlib stream's Adler-32 (RFC 1950 section 2.2) covers the data, and
+    /// the deflate format (RFC 1951) is what allows the equal readings.
+    #[test]
+    fn a_changed_character_in_a_chunk_is_refused_never_misread() {
+        let entries = demo_entries();
+        let text = encode_chunk(&entries[..12]);
+        let chars: Vec<char> = text.chars().collect();
+        let (mut refused, mut equal) = (0, 0);
+        for i in 0..chars.len() {
+            for step in [1u32, 0x2A5, 0x4000] {
+                let mut changed = chars.clone();
+                let v = (chars[i] as u32 - BASE + step) % 0x8000 + BASE;
+                changed[i] = char::from_u32(v).unwrap();
+                let changed: String = changed.into_iter().collect();
+                match decode_chunk(&changed) {
+                    Err(_) => refused += 1,
+                    Ok(read) => {
+                        assert_eq!(read, entries[..12], "character {i}, step {step:#x}");
+                        equal += 1;
+                    }
+                }
+            }
+        }
+        // Nearly every change is caught; the equal readings are rare.
+        assert!(
+            equal * 100 < refused,
+            "{equal} equal readings, {refused} refused"
+        );
+    }
+
     #[test]
     fn a_crash_between_chunk_and_pointer_leaves_the_earlier_generation() {
         let entries = demo_entries();
