@@ -370,21 +370,34 @@ where
 /// and the previous month and the cumulative figures beside them. Results of rejected
 /// runs do not count in the statistics (as in `engine::qcstats`); every run of the
 /// month counts for the rule tallies. bias % = (mean − target) / target × 100;
-/// SDI = (mean − target) / target SD.
+/// SDI = (mean − target) / target SD. `verdicts` are the lab's own
+/// ([`LabVerdicts::of`] the same lab, or the shell's shared ones).
 pub fn monthly_review<Tz: TimeZone>(
     lab: &Lab,
+    verdicts: &crate::verdicts::LabVerdicts,
     year: i32,
     month: u32,
     tz: &Tz,
 ) -> Result<Table, String> {
     use crate::engine::qcstats::{self, ControlResult, Summary};
-    use chrono::Datelike;
-    let key = |y: i32, m: u32| format!("{y:04}-{m:02}");
-    let this = key(year, month);
-    let previous = if month == 1 {
-        key(year - 1, 12)
-    } else {
-        key(year, month - 1)
+    use crate::period::{Month, Period};
+    // The month and the one before as instants: each record is placed by comparing
+    // instants, with no zone arithmetic per record.
+    let window = |m: Month| {
+        Period::Month(m)
+            .instants(tz)
+            .ok_or_else(|| format!("{} is outside the calendar", m.iso()))
+    };
+    let this = Month { year, month };
+    let (from, to) = window(this)?;
+    let (previous_from, _) = window(this.step(-1))?;
+    let between = |results: &[ControlResult], a: DateTime<Utc>, b: DateTime<Utc>| {
+        let within: Vec<ControlResult> = results
+            .iter()
+            .copied()
+            .filter(|r| a <= r.at && r.at < b)
+            .collect();
+        qcstats::cumulative(&within)
     };
     let fmt = |v: Option<f64>, digits: usize| v.map_or(String::new(), |v| format!("{v:.digits$}"));
     let stats = |s: Option<&Summary>| -> [String; 4] {
@@ -398,13 +411,13 @@ pub fn monthly_review<Tz: TimeZone>(
     let mut rows = Vec::new();
     for t in &lab.tests {
         let h = lab.control_history(&t.meta.id);
-        let verdicts = qc::evaluate(&h.targets, &h.values, &t.qc_rules).map_err(|e| e.0)?;
+        let verdicts = verdicts.verdicts(&t.meta.id).map_err(|e| e.0)?;
         for (k, level) in h.levels.iter().enumerate() {
             let results: Vec<ControlResult> = h
                 .runs
                 .iter()
                 .zip(&h.values)
-                .zip(&verdicts)
+                .zip(verdicts)
                 .filter_map(|((run, values), v)| {
                     values[k].map(|value| ControlResult {
                         at: run.run_at,
@@ -414,17 +427,15 @@ pub fn monthly_review<Tz: TimeZone>(
                     })
                 })
                 .collect();
-            let months = qcstats::by_month(&results, tz);
-            let find = |m: &str| months.iter().find(|(k, _)| k == m).map(|(_, s)| s);
-            let now = find(&this);
+            let now = between(&results, from, to);
+            let now = now.as_ref();
             let target = h.targets[k];
             let bias = now.map(|s| (s.mean - target.mean) / target.mean * 100.0);
             let sdi = now.map(|s| (s.mean - target.mean) / target.sd);
             let mut warnings = std::collections::BTreeMap::<&str, usize>::new();
             let mut rejections = std::collections::BTreeMap::<&str, usize>::new();
-            for (run, v) in h.runs.iter().zip(&verdicts) {
-                let local = run.run_at.with_timezone(tz);
-                if (local.year(), local.month()) != (year, month) {
+            for (run, v) in h.runs.iter().zip(verdicts) {
+                if !(from <= run.run_at && run.run_at < to) {
                     continue;
                 }
                 for x in v.violations.iter().filter(|x| x.levels.contains(&k)) {
@@ -468,16 +479,9 @@ pub fn monthly_review<Tz: TimeZone>(
             }));
             row.push(tally(&warnings));
             row.push(tally(&rejections));
-            row.extend(stats(find(&previous)));
+            row.extend(stats(between(&results, previous_from, from).as_ref()));
             // Cumulative up to the end of the month reviewed.
-            let upto: Vec<ControlResult> = results
-                .iter()
-                .copied()
-                .filter(|r| {
-                    let l = r.at.with_timezone(tz);
-                    (l.year(), l.month()) <= (year, month)
-                })
-                .collect();
+            let upto: Vec<ControlResult> = results.iter().copied().filter(|r| r.at < to).collect();
             row.extend(stats(qcstats::cumulative(&upto).as_ref()));
             rows.push(row);
         }

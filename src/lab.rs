@@ -8,6 +8,7 @@
 
 use chrono::{DateTime, Utc};
 use serde::{Deserialize, Serialize};
+use std::collections::HashMap;
 
 use crate::engine::acceptance::{AcceptanceLimits, Outcome};
 use crate::engine::calibration::{Curve, ModelKind, ReplicateUse, Weighting};
@@ -932,13 +933,86 @@ impl Lab {
 
     /// QC runs of a test, oldest first.
     pub fn runs_of(&self, test_id: &str) -> Vec<&ControlRun> {
-        let mut runs: Vec<&ControlRun> = self
+        self.run_positions(test_id)
+            .into_iter()
+            .map(|k| &self.control_runs[k])
+            .collect()
+    }
+
+    /// Where a test's QC runs are in `control_runs`, oldest run first (what a view
+    /// holds instead of copies of the runs).
+    pub fn run_positions(&self, test_id: &str) -> Vec<usize> {
+        let mut at: Vec<(DateTime<Utc>, usize)> = self
             .control_runs
             .iter()
-            .filter(|r| r.test_id == test_id)
+            .enumerate()
+            .filter(|(_, r)| r.test_id == test_id)
+            .map(|(k, r)| (r.run_at, k))
             .collect();
-        runs.sort_by_key(|r| r.run_at);
-        runs
+        // Stable: runs at the same instant keep the order they were recorded in.
+        at.sort_by_key(|&(t, _)| t);
+        at.into_iter().map(|(_, k)| k).collect()
+    }
+
+    /// For each test (by id), a number that changes whenever anything a view of that
+    /// test can draw changes: the test and its own levels, runs, calibrations and
+    /// patient results, and the lab-wide records and settings every test's view may
+    /// cite (materials, corrective actions, the instrument log). Records change only by
+    /// new ids and versions, so ids, versions and change times are hashed, not
+    /// content: one pass over the lab, without serialising it. A view keeps what it drew
+    /// for a test while its key stays the same.
+    pub fn test_keys(&self) -> HashMap<String, u64> {
+        use std::hash::{DefaultHasher, Hash, Hasher};
+        let stamp = |m: &RecordMeta, h: &mut DefaultHasher| {
+            m.id.hash(h);
+            m.version.hash(h);
+            m.changed_at.hash(h);
+        };
+        let mut shared = DefaultHasher::new();
+        (&self.lab_name, self.demo, self.schema_version).hash(&mut shared);
+        format!(
+            "{:?}{:?}{:?}",
+            self.temperature_limits, self.absorbance_standards, self.instrument_checks
+        )
+        .hash(&mut shared);
+        self.materials
+            .iter()
+            .for_each(|r| stamp(&r.meta, &mut shared));
+        self.corrective_actions
+            .iter()
+            .for_each(|r| stamp(&r.meta, &mut shared));
+        self.instrument_log
+            .iter()
+            .for_each(|r| stamp(&r.meta, &mut shared));
+        let mut per: HashMap<&str, DefaultHasher> = self
+            .tests
+            .iter()
+            .map(|t| {
+                let mut h = shared.clone();
+                stamp(&t.meta, &mut h);
+                (t.meta.id.as_str(), h)
+            })
+            .collect();
+        let mut add = |test_id: &str, m: &RecordMeta| {
+            if let Some(h) = per.get_mut(test_id) {
+                stamp(m, h);
+            }
+        };
+        self.control_levels
+            .iter()
+            .for_each(|r| add(&r.test_id, &r.meta));
+        self.control_runs
+            .iter()
+            .for_each(|r| add(&r.test_id, &r.meta));
+        self.calibrations
+            .iter()
+            .for_each(|r| add(&r.test_id, &r.meta));
+        self.patient_results
+            .iter()
+            .for_each(|r| add(&r.test_id, &r.meta));
+        per.into_iter()
+            .map(|(id, h)| (id.to_string(), h.finish()))
+            .collect()
     }
 
     /// A test's QC history in the engine's terms: the level targets and, per run
@@ -992,6 +1066,40 @@ mod tests {
         ids.sort();
         ids.dedup();
         assert_eq!(ids.len(), n, "record ids must be unique");
+    }
+
+    /// A test's key follows its own records and the lab-wide ones, and no other test's.
+    #[test]
+    fn a_test_key_changes_with_its_records_and_not_with_another_tests() {
+        let lab = crate::demo::demo_lab();
+        let keys = lab.test_keys();
+        assert_eq!(keys.len(), lab.tests.len());
+        let (a, b) = (lab.tests[0].meta.id.clone(), lab.tests[1].meta.id.clone());
+        // A new run of test A.
+        let mut more = lab.clone();
+        let mut run = more.runs_of(&a).last().map(|r| (*r).clone()).unwrap();
+        run.meta.id = "a-new-run".into();
+        more.control_runs.push(run);
+        let k = more.test_keys();
+        assert_ne!(k[&a], keys[&a]);
+        assert_eq!(k[&b], keys[&b]);
+        // A correction of one of B's calibrations (a new version).
+        let mut corrected = lab.clone();
+        let cal = corrected
+            .calibrations
+            .iter_mut()
+            .find(|c| c.test_id == b)
+            .unwrap();
+        cal.meta.version += 1;
+        let k = corrected.test_keys();
+        assert_eq!(k[&a], keys[&a]);
+        assert_ne!(k[&b], keys[&b]);
+        // A material (lab-wide) changes every key; the same lab gives the same keys.
+        let mut material = lab.clone();
+        material.materials[0].meta.version += 1;
+        let k = material.test_keys();
+        assert!(lab.tests.iter().all(|t| k[&t.meta.id] != keys[&t.meta.id]));
+        assert_eq!(lab.clone().test_keys(), keys);
     }
 
     /// A received lot opens once; a discard needs a reason, happens once, and a

@@ -125,6 +125,48 @@ impl Mirror {
         out
     }
 
+    /// Check the `k`-th chunk the pointer names against the journal's `entries` (the
+    /// ones it should hold, from IndexedDB). `Err` says what is wrong, in the words of
+    /// the start-up report.
+    pub fn check_chunk(
+        &self,
+        kv: &dyn KeyValue,
+        pointer: &Pointer,
+        k: usize,
+        entries: &[Entry],
+    ) -> Result<(), String> {
+        let Some(key) = pointer.chunks.get(k) else {
+            return Ok(());
+        };
+        let held = kv
+            .get(key)
+            .ok_or_else(|| "it is missing".to_string())
+            .and_then(|t| decode_chunk(&t))
+            .map_err(|why| format!("the stored chunk {key} cannot be read: {why}"))?;
+        let from = (k * ENTRIES_PER_CHUNK).min(entries.len());
+        let expected = &entries[from..(from + ENTRIES_PER_CHUNK).min(entries.len())];
+        if held == expected {
+            return Ok(());
+        }
+        let at = held
+            .iter()
+            .zip(expected)
+            .position(|(a, b)| a != b)
+            .unwrap_or(held.len().min(expected.len()));
+        match expected.get(at).or(expected.last()) {
+            Some(e) => Err(format!(
+                "the localStorage copy differs from the journal from entry {} ({} {}) on: it was \
+                 changed outside Cuvette",
+                e.seq,
+                e.kind.words(),
+                e.id
+            )),
+            None => Err(format!(
+                "the stored chunk {key} holds entries the journal does not have"
+            )),
+        }
+    }
+
     /// Write `entries` (the whole journal) as the next generation after `previous`:
     /// full chunks already stored are kept, the rest written under new keys, then the
     /// pointer, then the chunks no longer named are removed. On a refusal the earlier
@@ -425,6 +467,58 @@ mod tests {
             equal * 100 < refused,
             "{equal} equal readings, {refused} refused"
         );
+    }
+
+    /// Each chunk is checked against the journal on its own: an intact copy passes, an
+    /// edited chunk, a missing one and one with other entries are each named.
+    #[test]
+    fn a_chunk_is_checked_against_the_journal() {
+        let lab = crate::demo::demo_lab();
+        let entries = founding_entries(&lab, "2026-11-27T09:00:00Z".parse().unwrap(), "AK");
+        assert!(
+            entries.len() > ENTRIES_PER_CHUNK,
+            "the check needs two chunks"
+        );
+        let m = Mirror::new("cuvette.lab.");
+        let mut kv = MemoryStore::default();
+        let p = m.write(&mut kv, &entries, None).unwrap();
+        for k in 0..p.chunks.len() + 1 {
+            assert_eq!(m.check_chunk(&kv, &p, k, &entries), Ok(()), "chunk {k}");
+        }
+        // Another journal of the same length: its first entry differs.
+        let mut other = entries.clone();
+        other[3].by = "ZZ".into();
+        let e = m.check_chunk(&kv, &p, 0, &other).unwrap_err();
+        assert!(e.contains(&format!("from entry {} ", other[3].seq)), "{e}");
+        // The last chunk when the journal is shorter than the copy.
+        let short = &entries[..ENTRIES_PER_CHUNK + 1];
+        assert!(m.check_chunk(&kv, &p, 1, short).is_err());
+        assert!(m
+            .check_chunk(&kv, &p, 1, &entries[..ENTRIES_PER_CHUNK])
+            .is_err());
+        // An edited character; a removed chunk.
+        let key = p.chunks[1].clone();
+        let text = kv.get(&key).unwrap();
+        let edited: String = text
+            .chars()
+            .take(1)
+            .chain(
+                text.chars()
+                    .skip(1)
+                    .map(|c| char::from_u32((c as u32 - BASE + 0x1111) % 0x8000 + BASE).unwrap()),
+            )
+            .collect();
+        kv.map.insert(key.clone(), edited);
+        let e = m.check_chunk(&kv, &p, 1, &entries).unwrap_err();
+        assert!(
+            e.starts_with(&format!("the stored chunk {key} cannot be read")),
+            "{e}"
+        );
+        kv.map.remove(&key);
+        assert!(m
+            .check_chunk(&kv, &p, 1, &entries)
+            .unwrap_err()
+            .ends_with("it is missing"));
     }
 
     #[test]

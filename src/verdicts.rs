@@ -5,6 +5,7 @@
 //! Plain Rust over the lab's records; the shell keeps one per lab revision.
 
 use std::collections::HashMap;
+use std::sync::Arc;
 
 use crate::engine::qc::{Judge, Options, QcError, RunVerdict};
 use crate::lab::Lab;
@@ -81,27 +82,44 @@ impl TestVerdicts {
     }
 }
 
-/// Every test's verdicts for one state of the lab.
+/// Every test's verdicts for one state of the lab, each with the test's key
+/// ([`Lab::test_keys`]) it was judged at.
 #[derive(Debug, Clone, Default)]
 pub struct LabVerdicts {
-    tests: HashMap<String, TestVerdicts>,
+    tests: HashMap<String, (u64, Arc<TestVerdicts>)>,
 }
 
 impl LabVerdicts {
     /// Judge every test of the lab once.
     pub fn of(lab: &Lab) -> LabVerdicts {
-        LabVerdicts {
-            tests: lab
-                .tests
-                .iter()
-                .map(|t| (t.meta.id.clone(), TestVerdicts::of(lab, &t.meta.id)))
-                .collect(),
-        }
+        LabVerdicts::after(None, lab)
+    }
+
+    /// The verdicts for `lab`, judging again only the tests whose key changed since
+    /// `before` (the verdicts of an earlier state): a change to one test costs that
+    /// test's history, not the lab's.
+    pub fn after(before: Option<&LabVerdicts>, lab: &Lab) -> LabVerdicts {
+        let keys = lab.test_keys();
+        let tests = lab
+            .tests
+            .iter()
+            .map(|t| {
+                let id = &t.meta.id;
+                let key = keys.get(id).copied().unwrap_or_default();
+                let kept = before
+                    .and_then(|b| b.tests.get(id))
+                    .filter(|(k, _)| *k == key)
+                    .map(|(_, v)| Arc::clone(v));
+                let judged = kept.unwrap_or_else(|| Arc::new(TestVerdicts::of(lab, id)));
+                (id.clone(), (key, judged))
+            })
+            .collect();
+        LabVerdicts { tests }
     }
 
     /// A test's verdicts (`None` for a test this lab state does not have).
     pub fn test(&self, test_id: &str) -> Option<&TestVerdicts> {
-        self.tests.get(test_id)
+        self.tests.get(test_id).map(|(_, v)| v.as_ref())
     }
 
     /// A test's verdicts in history order, or why they cannot be given.
@@ -144,6 +162,36 @@ mod tests {
             );
         }
         assert!(all.verdicts("no-such-test").is_err());
+    }
+
+    /// After a new run of one test, that test is judged again and the others are kept
+    /// as they were; every verdict equals a judging of the whole lab afresh.
+    #[test]
+    fn only_the_changed_test_is_judged_again() {
+        let lab = crate::demo::demo_lab();
+        let before = LabVerdicts::of(&lab);
+        let changed_test = lab.tests[0].meta.id.clone();
+        let mut more = lab.clone();
+        let mut run = more
+            .runs_of(&changed_test)
+            .last()
+            .map(|r| (*r).clone())
+            .unwrap();
+        run.meta.id = "a-new-run".into();
+        run.run_at += chrono::Duration::hours(1);
+        more.control_runs.push(run);
+        let after = LabVerdicts::after(Some(&before), &more);
+        let afresh = LabVerdicts::of(&more);
+        for t in &more.tests {
+            let id = &t.meta.id;
+            assert_eq!(after.verdicts(id), afresh.verdicts(id), "{}", t.code);
+            let kept = Arc::ptr_eq(&after.tests[id].1, &before.tests[id].1);
+            assert_eq!(kept, *id != changed_test, "{} kept: {kept}", t.code);
+        }
+        assert_eq!(
+            after.verdicts(&changed_test).unwrap().len(),
+            before.verdicts(&changed_test).unwrap().len() + 1
+        );
     }
 
     #[test]

@@ -8,6 +8,7 @@ use chrono::{Datelike, Utc};
 use cuvette::engine::qc;
 use cuvette::export;
 use cuvette::lab::Lab;
+use cuvette::verdicts::LabVerdicts;
 use serde_json::json;
 
 #[test]
@@ -15,7 +16,7 @@ fn the_monthly_review_matches_numpy_and_the_decisions() {
     let lab = Lab::from_json(include_str!("../demo-data/demo-lab.json")).unwrap();
     let newest = lab.newest_time().unwrap();
     let (y, m) = (newest.year(), newest.month());
-    let review = export::monthly_review(&lab, y, m, &Utc).unwrap();
+    let review = export::monthly_review(&lab, &LabVerdicts::of(&lab), y, m, &Utc).unwrap();
     assert_eq!(review.rows.len(), lab.control_levels.len());
     let col = |name: &str| review.headers.iter().position(|h| *h == name).unwrap();
     let mut groups = Vec::new();
@@ -66,14 +67,14 @@ print(json.dumps(out))
     // With an allowable total error of 10 %, sigma = (10 − |bias|) / CV of the month.
     let mut with_goal = lab.clone();
     with_goal.tests[0].allowable_error_pct = Some(10.0);
-    let r = export::monthly_review(&with_goal, y, m, &Utc).unwrap();
+    let r = export::monthly_review(&with_goal, &LabVerdicts::of(&with_goal), y, m, &Utc).unwrap();
     let row = &r.rows[0];
     let num = |c: &str| row[col(c)].parse::<f64>().unwrap();
     let want = (10.0 - num("bias_pct").abs()) / num("cv_pct");
     assert!((num("sigma") - want).abs() < 0.06, "{row:?}");
     assert!(!row[col("qc_design")].is_empty());
     // And a month with no runs has no statistics.
-    let empty = export::monthly_review(&lab, y - 1, m, &Utc).unwrap();
+    let empty = export::monthly_review(&lab, &LabVerdicts::of(&lab), y - 1, m, &Utc).unwrap();
     assert!(empty
         .rows
         .iter()

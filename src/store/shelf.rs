@@ -30,6 +30,9 @@ pub struct Shelf {
     pub skip: Vec<u64>,
     pointer: Option<Pointer>,
     flushing: bool,
+    /// How many times another tab's entries were taken in (the lab on screen changed
+    /// under a save).
+    taken_in: u64,
 }
 
 /// How the last save went.
@@ -48,6 +51,12 @@ pub enum Saved {
 impl Shelf {
     fn mirror(&self) -> Mirror {
         Mirror::new(self.book.prefix())
+    }
+
+    /// Counts the times another tab's entries were taken in: a save that leaves it
+    /// unchanged left the lab on screen as it was.
+    pub fn taken_in(&self) -> u64 {
+        self.taken_in
     }
 
     /// The lab on screen (`None` for a book with nothing in it).
@@ -151,6 +160,7 @@ impl Shelf {
         if newer.is_empty() {
             return;
         }
+        self.taken_in += 1;
         self.entries.extend(newer);
         self.replay = journal::replay(&self.entries, None, &self.skip);
         let ours = std::mem::take(&mut self.unsaved);
@@ -235,6 +245,7 @@ pub async fn open(book: Book, db: Option<Db>) -> (Shelf, Vec<String>) {
         skip,
         pointer: read.pointer,
         flushing: false,
+        taken_in: 0,
     };
     // A copy that is only behind gets the missing entries; a damaged or different one
     // is written afresh.
@@ -407,6 +418,7 @@ pub fn empty(book: Book, db: Option<Db>) -> Shelf {
         skip: Vec::new(),
         pointer: None,
         flushing: false,
+        taken_in: 0,
     }
 }
 

@@ -15,7 +15,7 @@ use crate::lab::{CalibrationRecord, CalibratorReading, Lab, TestSetup};
 #[component]
 pub fn CalibrationView(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// Saves a changed lab.
     save: Callback<Lab>,
     /// The technician's initials.
@@ -268,7 +268,7 @@ fn NewCalibration(
             materials_used: used,
             acknowledged: warned,
         };
-        let mut changed = Lab::clone(&lab);
+        let mut changed = super::lab_to_change(&lab);
         changed.calibrations.push(record);
         save.run(changed);
         set_message.set(Some(format!("saved: {}", outcome_words(verdict.outcome))));

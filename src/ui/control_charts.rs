@@ -8,12 +8,11 @@ use leptos::prelude::*;
 use super::{chart, judged, EmptyState, PeriodPicker, NO_LAB};
 use crate::engine::charts::LeveyJennings;
 use crate::engine::qcstats::{self, ControlResult, Summary, Target, TargetSource};
-use crate::lab::Lab;
 
 #[component]
 pub(super) fn ControlCharts(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
 ) -> impl IntoView {
     // The month charted: this month until another is chosen. Decisions come from the
     // whole history; the statistics below each chart are this month's and overall.

@@ -38,7 +38,7 @@ struct Pending {
 #[component]
 pub fn ExchangePanel(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// The current time, ticking.
     clock: ReadSignal<chrono::DateTime<Utc>>,
     /// The sheet to print, when open.
@@ -399,7 +399,7 @@ fn table_view(t: export::Table) -> AnyView {
 #[component]
 pub fn DaySheet(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// The sheet shown, when open.
     sheet: ReadSignal<Option<Sheet>>,
     set_sheet: WriteSignal<Option<Sheet>>,
@@ -428,7 +428,9 @@ pub fn DaySheet(
         let l = match (lab.get(), which) {
             (Some(l), _) => l,
             // The verification report needs no records.
-            (None, Sheet::Verification(_)) => Lab::empty("No lab set up yet"),
+            (None, Sheet::Verification(_)) => {
+                super::SharedLab::new(Lab::empty("No lab set up yet"))
+            }
             (None, _) => return None,
         };
         let entries: Vec<Entry> = trail.shelf.get_value().borrow().entries_all();
@@ -440,7 +442,8 @@ pub fn DaySheet(
             ),
             Sheet::Month(y, m) => (
                 format!("{y:04}-{m:02}"),
-                export::monthly_review(&l, y, m, &Local).map(|t| vec![t]),
+                export::monthly_review(&l, &super::judged().get_untracked().0, y, m, &Local)
+                    .map(|t| vec![t]),
                 None,
             ),
             Sheet::Verification(at) => (
@@ -520,7 +523,7 @@ pub fn DaySheet(
 #[component]
 pub fn MonthlyReview(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// The current time, ticking.
     clock: ReadSignal<chrono::DateTime<Utc>>,
     /// Where the printed sheet opens.
@@ -537,7 +540,13 @@ pub fn MonthlyReview(
     let (message, set_message) = signal(None::<String>);
     let table = move || {
         let (y, m) = month();
-        lab.with(|l| l.as_ref().map(|l| export::monthly_review(l, y, m, &Local)))
+        // The view's lab is tracked; the shared verdicts are those of that same lab
+        // (a hidden view's lab does not change, so it does no work).
+        let judged = super::judged().get_untracked().0;
+        lab.with(|l| {
+            l.as_ref()
+                .map(|l| export::monthly_review(l, &judged, y, m, &Local))
+        })
     };
     let csv = move |_| {
         let (y, m) = month();
@@ -548,7 +557,9 @@ pub fn MonthlyReview(
             NaiveDate::from_ymd_opt(y, m, 1).unwrap_or_default(),
             "csv",
         );
-        let text = export::monthly_review(&l, y, m, &Local).and_then(|t| export::to_csv(&t));
+        let judged = super::judged().get_untracked().0;
+        let text =
+            export::monthly_review(&l, &judged, y, m, &Local).and_then(|t| export::to_csv(&t));
         match text.and_then(|t| store::download(&name, "text/csv", &t).map_err(|e| e.0)) {
             Ok(()) => set_message.set(Some(format!("Offered {name}."))),
             Err(e) => set_message.set(Some(e)),
@@ -598,7 +609,7 @@ struct Archiving {
 #[component]
 pub fn ArchivePanel(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// The current time, ticking.
     clock: ReadSignal<chrono::DateTime<Utc>>,
 ) -> impl IntoView {
@@ -609,8 +620,9 @@ pub fn ArchivePanel(
     let (message, set_message) = signal(None::<String>);
     let last_year = move || clock.get().with_timezone(&Local).year() - 1;
     let chosen_year = move || year.get().unwrap_or_else(last_year);
+    // Follows the view's own lab, which is set afresh on every change while the view
+    // is shown (and not while it is hidden: the entries are cloned to count).
     let count = move || {
-        trail.revision.track();
         let y = chosen_year();
         lab.with(|l| {
             l.as_ref().map_or(0, |l| {

@@ -12,7 +12,7 @@ use crate::lab::{InstrumentEntry, InstrumentEvent, Lab};
 #[component]
 pub fn InstrumentView(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// Saves a changed lab.
     save: Callback<Lab>,
     /// The technician's initials.
@@ -63,7 +63,9 @@ pub fn InstrumentView(
                 "reading: give the absorbance read on the standard".into(),
             ));
         }
-        let mut changed = lab.get_untracked().unwrap_or_else(|| Lab::empty("My lab"));
+        let mut changed = lab
+            .get_untracked()
+            .map_or_else(|| Lab::empty("My lab"), |l| Lab::clone(&l));
         let entry = InstrumentEntry {
             meta,
             at: now,

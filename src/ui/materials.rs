@@ -53,7 +53,7 @@ fn row(
 #[component]
 pub fn MaterialsView(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// Saves a changed lab.
     save: Callback<Lab>,
     /// The technician's initials.
@@ -333,7 +333,7 @@ fn FreezeAliquots(id: String, technician: ReadSignal<String>) -> impl IntoView {
 
 #[component]
 fn NewMaterial(
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
 ) -> impl IntoView {
@@ -374,7 +374,9 @@ fn NewMaterial(
         let initials = meta.by.clone();
         match form.get_untracked().into_material(meta, now) {
             Ok(m) => {
-                let mut changed = lab.get_untracked().unwrap_or_else(|| Lab::empty("My lab"));
+                let mut changed = lab
+                    .get_untracked()
+                    .map_or_else(|| Lab::empty("My lab"), |l| Lab::clone(&l));
                 let name = m.name.clone();
                 let what = match (m.stability.opened_at, &m.reconstitution) {
                     (None, _) => "received (not opened) now",

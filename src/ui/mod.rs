@@ -42,28 +42,95 @@ pub(super) fn new_record(
 /// cards and forms read it.
 pub(super) type SharedLab = std::sync::Arc<Lab>;
 
+/// Run `f` and leave its duration in the page's performance timeline under `name`
+/// (the newest only), for the browser benchmarks to read; nothing is shown.
+pub(super) fn timed<T>(name: &str, f: impl FnOnce() -> T) -> T {
+    timing_starts(name);
+    let out = f();
+    timing_ends(name);
+    out
+}
+
+/// Start timing `name` (for work that awaits between its start and end).
+pub(super) fn timing_starts(name: &str) {
+    if let Some(p) = web_sys::window().and_then(|w| w.performance()) {
+        let _ = p.mark(&format!("{name}:start"));
+    }
+}
+
+/// End timing `name`: its duration is left as a performance measure of that name.
+pub(super) fn timing_ends(name: &str) {
+    if let Some(p) = web_sys::window().and_then(|w| w.performance()) {
+        let start = format!("{name}:start");
+        p.clear_measures_with_measure_name(name);
+        let _ = p.measure_with_start_mark(name, &start);
+        p.clear_marks_with_mark_name(&start);
+    }
+}
+
+/// The lab a card's form changes: the one on screen now. A card is kept while its
+/// test's key stays the same ([`Lab::test_keys`]), so the copy it was drawn from can
+/// lack another test's newer records: good for drawing its own test, never for saving.
+pub(super) fn lab_to_change(drawn: &Lab) -> Lab {
+    use_context::<Trail>()
+        .and_then(|t| t.current_lab())
+        .unwrap_or_else(|| drawn.clone())
+}
+
 /// One card per test, or the empty state: the shape of the Calibration and QC runs
-/// views.
+/// views. A test's card is drawn again only when its key changes (its own records, or
+/// the lab-wide ones it may cite); the other cards stay as they are.
 pub(super) fn per_test(
-    lab: ReadSignal<Option<Lab>>,
-    card: impl Fn(&SharedLab, &crate::lab::TestSetup) -> AnyView + Send + Sync + 'static,
+    lab: ReadSignal<Option<SharedLab>>,
+    card: impl Fn(&SharedLab, &crate::lab::TestSetup) -> AnyView + Send + Sync + Clone + 'static,
 ) -> impl IntoView {
-    move || {
+    #[derive(Clone, Copy, PartialEq)]
+    enum Shown {
+        NoLab,
+        NoTests,
+        Tests,
+    }
+    // A memo, so that a change redraws the cards through the keyed list below and
+    // only a change of what is shown at all starts the list afresh.
+    let shown = Memo::new(move |_| {
         lab.with(|l| match l {
-            None => view! { <EmptyState text=NO_LAB /> }.into_any(),
-            Some(l) if l.tests.is_empty() => {
-                view! { <EmptyState text="No tests set up yet: add them in Set-up." /> }.into_any()
-            }
-            Some(l) => {
-                let shared = SharedLab::new(l.clone());
-                shared
-                    .tests
-                    .iter()
-                    .map(|t| card(&shared, t))
-                    .collect_view()
-                    .into_any()
-            }
+            None => Shown::NoLab,
+            Some(l) if l.tests.is_empty() => Shown::NoTests,
+            Some(_) => Shown::Tests,
         })
+    });
+    let cards = move || {
+        lab.with(|l| {
+            let Some(l) = l else { return Vec::new() };
+            let keys = l.test_keys();
+            let shared = SharedLab::clone(l);
+            (0..shared.tests.len())
+                .map(|k| {
+                    let key = keys
+                        .get(&shared.tests[k].meta.id)
+                        .copied()
+                        .unwrap_or_default();
+                    (shared.tests[k].meta.id.clone(), key, k, shared.clone())
+                })
+                .collect::<Vec<_>>()
+        })
+    };
+    move || match shown.get() {
+        Shown::NoLab => view! { <EmptyState text=NO_LAB /> }.into_any(),
+        Shown::NoTests => {
+            view! { <EmptyState text="No tests set up yet: add them in Set-up." /> }.into_any()
+        }
+        Shown::Tests => {
+            let card = card.clone();
+            view! {
+                <For
+                    each=cards
+                    key=|(id, key, _, _)| (id.clone(), *key)
+                    children=move |(_, _, k, lab)| card(&lab, &lab.tests[k])
+                />
+            }
+            .into_any()
+        }
     }
 }
 
@@ -261,12 +328,21 @@ pub(super) fn judged() -> Memo<Judged> {
 
 #[component]
 fn Bench() -> impl IntoView {
-    let (lab, set_lab) = signal::<Option<Lab>>(None);
-    provide_context(Memo::new(move |_| {
-        Judged(std::sync::Arc::new(lab.with(|l| {
-            l.as_ref()
-                .map(crate::verdicts::LabVerdicts::of)
-                .unwrap_or_default()
+    let (lab, set_lab) = signal::<Option<SharedLab>>(None);
+    // Each change judges again only the tests it touched (the others keep their
+    // verdicts from the previous state). Timed for the benchmarks (see `timed`).
+    provide_context(Memo::new(move |before: Option<&Judged>| {
+        let name = if before.is_some() {
+            "cuvette:verdicts-after-change"
+        } else {
+            "cuvette:verdicts-all"
+        };
+        Judged(std::sync::Arc::new(timed(name, || {
+            lab.with(|l| {
+                l.as_ref()
+                    .map(|l| crate::verdicts::LabVerdicts::after(before.map(|b| b.0.as_ref()), l))
+                    .unwrap_or_default()
+            })
         })))
     }));
     let (problem, set_problem) = signal::<Option<String>>(None);
@@ -301,11 +377,11 @@ fn Bench() -> impl IntoView {
     let viewing = RwSignal::new(None::<(String, Lab)>);
     let show = move || {
         if let Some((_, archive)) = viewing.get_untracked() {
-            set_lab.set(Some(archive));
+            set_lab.set(Some(SharedLab::new(archive)));
         } else {
             let cell = shelf.get_value();
             let s = cell.borrow();
-            set_lab.set(s.lab());
+            set_lab.set(s.lab().map(SharedLab::new));
         }
         set_revision.update(|r| *r += 1);
     };
@@ -313,6 +389,7 @@ fn Bench() -> impl IntoView {
     let flush = move || {
         let cell = shelf.get_value();
         leptos::task::spawn_local(async move {
+            let taken_in = cell.borrow().taken_in();
             let Some(outcome) = store::shelf::flush(&cell).await else {
                 return;
             };
@@ -329,7 +406,11 @@ fn Bench() -> impl IntoView {
                     t.announce(book)
                 }
             });
-            show();
+            // The lab on screen already holds the change; it is drawn again only when
+            // another tab's entries were taken in on the way.
+            if cell.borrow().taken_in() != taken_in {
+                show();
+            }
         });
     };
     // Open the stores, bring in a lab kept in the one-key format, show the book.
@@ -346,7 +427,9 @@ fn Bench() -> impl IntoView {
                 None
             }
         };
+        timing_starts("cuvette:open-journal");
         let (mut opened, notes) = store::shelf::open(book.get_untracked(), db.clone()).await;
+        timing_ends("cuvette:open-journal");
         found.extend(notes);
         if let Some(old) = store::one_key_lab() {
             if opened.entries.is_empty() && !store::shelf::has_mirror(store::Book::Lab) {
@@ -709,7 +792,7 @@ fn Bench() -> impl IntoView {
                 <exchange::ExchangePanel lab=lab_records clock=clock_records sheet=set_sheet />
                 <exchange::ArchivePanel lab=lab_records clock=clock_records />
                 <records::StorageMeter lab=lab_records clock=clock_records />
-                <records::DayTrail clock=clock_records />
+                <records::DayTrail clock=clock_records lab=lab_records />
             </ViewPanel>
             <ViewPanel view=View::Setup active=active>
                 <setup::SetupView lab=lab_setup save=save technician=technician load_demo=load_demo />
@@ -723,11 +806,11 @@ fn Bench() -> impl IntoView {
 /// it was when last shown while it is hidden, so a hidden view does no work on a change
 /// (each change is drawn by the view on screen; another view catches up when opened).
 fn gated(
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<SharedLab>>,
     revision: ReadSignal<u64>,
     active: ReadSignal<View>,
     view: View,
-) -> ReadSignal<Option<Lab>> {
+) -> ReadSignal<Option<SharedLab>> {
     let (seen, set_seen) = signal(lab.get_untracked());
     let shown = StoredValue::new(revision.get_untracked());
     Effect::new(move |_| {

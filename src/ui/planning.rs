@@ -8,7 +8,6 @@ use leptos::prelude::*;
 
 use crate::engine::planning::{self, Error, Probability, Simulation};
 use crate::engine::qc::{Action, Rule};
-use crate::lab::Lab;
 
 /// Simulated runs per shift (the standard error is then at most 0.0016).
 const TRIALS: usize = 100_000;
@@ -198,7 +197,7 @@ fn TestPlanning(
 #[component]
 pub fn PlanningPanel(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
 ) -> impl IntoView {
     move || {
         lab.with(|l| {

@@ -8,7 +8,6 @@ use leptos::prelude::*;
 
 use super::{Change, Trail};
 use crate::journal::{self, Action, Entry};
-use crate::lab::Lab;
 use crate::store;
 
 /// What the start-up repaired or could not use, until dismissed.
@@ -156,6 +155,9 @@ pub fn VoidButton(
 pub fn DayTrail(
     /// The current time, ticking.
     clock: ReadSignal<chrono::DateTime<Utc>>,
+    /// The Records view's lab: set afresh on each change while the view is shown, so
+    /// the trail is drawn again then, and not while the view is hidden.
+    lab: ReadSignal<Option<super::SharedLab>>,
 ) -> impl IntoView {
     let trail = expect_context::<Trail>();
     let (day, set_day) = signal(None::<NaiveDate>);
@@ -164,18 +166,20 @@ pub fn DayTrail(
             .unwrap_or_else(|| clock.get().with_timezone(&Local).date_naive())
     };
     let rows = move || {
-        trail.revision.track();
+        lab.track();
         let date = chosen();
         let cell = trail.shelf.get_value();
         let s = cell.borrow();
-        let lines: Vec<(String, String, String)> = journal::day(&s.entries, date, &Local)
+        // Committed entries, then those still being saved (drawn when they are made).
+        let day: Vec<&Entry> = journal::day(&s.entries, date, &Local)
             .into_iter()
+            .chain(journal::day(&s.unsaved, date, &Local))
+            .collect();
+        let lines: Vec<(String, String, String)> = day
+            .iter()
             .map(|e| (entry_line(e), crate::export::entry_summary(e), e.id.clone()))
             .collect();
-        let who: std::collections::BTreeSet<String> = journal::day(&s.entries, date, &Local)
-            .iter()
-            .map(|e| e.by.clone())
-            .collect();
+        let who: std::collections::BTreeSet<String> = day.iter().map(|e| e.by.clone()).collect();
         (lines, who.into_iter().collect::<Vec<_>>().join(", "))
     };
     let print = |_| {
@@ -238,7 +242,7 @@ fn first_entry_time(trail: &Trail) -> Option<chrono::DateTime<Utc>> {
 #[component]
 pub fn StorageMeter(
     /// The lab being worked on (redraws on change).
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// The current time, ticking.
     clock: ReadSignal<chrono::DateTime<Utc>>,
 ) -> impl IntoView {
@@ -272,7 +276,7 @@ pub fn StorageMeter(
 #[component]
 pub fn StorageWarning(
     /// The lab being worked on (re-checks on change).
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// The current time, ticking.
     clock: ReadSignal<chrono::DateTime<Utc>>,
 ) -> impl IntoView {

@@ -16,7 +16,7 @@ use crate::period::Period;
 #[component]
 pub fn RunsView(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// Saves a changed lab.
     save: Callback<Lab>,
     /// The technician's initials.
@@ -52,6 +52,7 @@ fn TestRuns(
 ) -> impl IntoView {
     let history = lab.control_history(&test.meta.id);
     let names: Vec<String> = history.levels.iter().map(|l| l.name.clone()).collect();
+    let level_ids: Vec<String> = history.levels.iter().map(|l| l.meta.id.clone()).collect();
     // Run times, named as dates only where a reason cites them.
     let run_dates: Vec<chrono::DateTime<chrono::Utc>> =
         history.runs.iter().map(|r| r.run_at).collect();
@@ -61,18 +62,22 @@ fn TestRuns(
     let total = history.runs.len();
     let lab_for_rows = lab.clone();
     let targets = history.targets.clone();
-    let runs: Vec<ControlRun> = history.runs.iter().map(|r| (*r).clone()).collect();
+    // Where the runs are in the shared lab (not copies of them), oldest first.
+    let positions = lab.run_positions(&test.meta.id);
     let values = history.values.clone();
+    drop(history);
     let names_for_rows = names.clone();
+    let dates_for_rows = run_dates.clone();
     let rows = move || {
         let month = period.get();
         let within = in_period(month);
         let lab = &lab_for_rows;
-        let (names, history_targets) = (&names_for_rows, &targets);
+        let (names, history_targets, run_dates) = (&names_for_rows, &targets, &dates_for_rows);
         match judged.verdicts(&test_id) {
         Err(e) => view! { <tr><td colspan="4">{format!("QC cannot be evaluated: {e}")}</td></tr> }.into_any(),
-        Ok(verdicts) => runs
+        Ok(verdicts) => positions
             .iter()
+            .map(|&k| &lab.control_runs[k])
             .zip(&values)
             .zip(verdicts.iter().cloned())
             .filter(|((run, _), _)| within(run.run_at))
@@ -85,7 +90,7 @@ fn TestRuns(
                         <td>{run.run_at.with_timezone(&Local).format("%Y-%m-%d %H:%M").to_string()}</td>
                         <td>{run.meta.by.clone()}</td>
                         <td>{shown}</td>
-                        <td>{verdict_view(&verdict, names, &run_dates)}{action}</td>
+                        <td>{verdict_view(&verdict, names, run_dates)}{action}</td>
                         <td class="no-print">
                             <super::records::HistoryButton id=run.meta.id.clone() />
                             " "
@@ -99,8 +104,7 @@ fn TestRuns(
         }
     };
     let shown_count = {
-        let runs: Vec<chrono::DateTime<chrono::Utc>> =
-            history.runs.iter().map(|r| r.run_at).collect();
+        let runs = run_dates.clone();
         move || {
             let month = period.get();
             let within = in_period(month);
@@ -109,13 +113,14 @@ fn TestRuns(
         }
     };
     let rules: Vec<&str> = test.qc_rules.iter().map(|r| r.rule.code()).collect();
-    let empty = history.runs.is_empty();
+    let empty = total == 0;
     let summary = format!("Levels: {}. Rules: {}.", names.join(", "), rules.join(", "));
     view! {
         <section class="card wide" data-testid=format!("runs-{}", test.code)>
             <h3>{format!("{} {}", test.code, test.name)}</h3>
             <p class="muted">{summary}</p>
-            <NewRun lab=lab.clone() test=test.clone() save=save technician=technician />
+            <NewRun lab=lab.clone() test=test.clone() save=save technician=technician
+                names=names.clone() level_ids=level_ids dates=run_dates />
             <SampleCalculator lab=lab.clone() test=test.clone() save=save technician=technician />
             <Show when=move || empty>
                 <p class="empty">"No QC runs recorded yet."</p>
@@ -196,7 +201,7 @@ fn ActionForm(
         if let Err(e) = crate::lab::check_record(&action) {
             return set_message.set(Some(e));
         }
-        let mut changed = Lab::clone(&lab);
+        let mut changed = super::lab_to_change(&lab);
         changed.corrective_actions.push(action);
         save.run(changed);
     };
@@ -261,7 +266,9 @@ fn verdict_view(
         .collect();
     view! {
         <strong data-testid="qc-decision">{decision_words(verdict.decision)}</strong>
-        <ul>{why.into_iter().map(|w| view! { <li>{w}</li> }).collect_view()}</ul>
+        {(!why.is_empty()).then(|| view! {
+            <ul>{why.into_iter().map(|w| view! { <li>{w}</li> }).collect_view()}</ul>
+        })}
     }
 }
 
@@ -281,18 +288,20 @@ fn parse_run(texts: &[String], names: &[String]) -> Result<Vec<Option<f64>>, Str
         .collect()
 }
 
+/// The form for a new run of one test, its decision shown before it is saved.
 #[component]
 fn NewRun(
     lab: super::SharedLab,
     test: TestSetup,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
+    /// The test's control levels (names and ids, in set-up order).
+    names: Vec<String>,
+    level_ids: Vec<String>,
+    /// The times of the test's runs, oldest first (a reason names a run by its date).
+    dates: Vec<chrono::DateTime<chrono::Utc>>,
 ) -> impl IntoView {
-    let snapshot = lab.clone();
     let lab_for_materials = lab.clone();
-    let history = snapshot.control_history(&test.meta.id);
-    let names: Vec<String> = history.levels.iter().map(|l| l.name.clone()).collect();
-    let level_ids: Vec<String> = history.levels.iter().map(|l| l.meta.id.clone()).collect();
     let (texts, set_texts) = signal(vec![String::new(); names.len()]);
     // Held here, not only in the page: a redraw after any save starts the form closed
     // and empty (a re-run after a corrective action is measured afresh).
@@ -338,7 +347,7 @@ fn NewRun(
         if let Some(refused) = crate::usage::refusal(&warned, acknowledged.get_untracked()) {
             return set_message.set(Some(refused.into()));
         }
-        let mut changed = Lab::clone(&lab);
+        let mut changed = super::lab_to_change(&lab);
         changed.control_runs.push(ControlRun {
             meta,
             test_id: test_id.clone(),
@@ -360,7 +369,6 @@ fn NewRun(
     };
     let names_for_inputs = names.clone();
     let names_for_verdict = names.clone();
-    let dates: Vec<chrono::DateTime<chrono::Utc>> = history.runs.iter().map(|r| r.run_at).collect();
     let code = test.code.clone();
     let unit = test.unit.clone();
     view! {
@@ -511,7 +519,7 @@ fn SampleCalculator(
             Ok(_) => return set_recorded.set(Some("type the samples first".into())),
             Err(e) => return set_recorded.set(Some(e)),
         };
-        let mut changed = Lab::clone(&lab_now);
+        let mut changed = super::lab_to_change(&lab_now);
         for (sample_id, r) in &list {
             let (meta, at) = match super::new_record(technician) {
                 Ok(m) => m,

@@ -14,7 +14,7 @@ fn meta_or_message(technician: ReadSignal<String>) -> Result<crate::lab::RecordM
 #[component]
 pub fn SetupView(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// Saves a changed lab.
     save: Callback<Lab>,
     /// The technician's initials.
@@ -62,7 +62,9 @@ pub fn SetupView(
         if name.is_empty() {
             return;
         }
-        let mut changed = lab.get_untracked().unwrap_or_else(|| Lab::empty(&name));
+        let mut changed = lab
+            .get_untracked()
+            .map_or_else(|| Lab::empty(&name), |l| Lab::clone(&l));
         changed.lab_name = name;
         save.run(changed);
     };
@@ -96,7 +98,10 @@ pub fn SetupView(
 /// The photometer's absorbance standards, as the lab's certificates give them.
 /// How often each instrument check is due: days between checks, empty for none.
 #[component]
-fn InstrumentChecks(lab: ReadSignal<Option<Lab>>, save: Callback<Lab>) -> impl IntoView {
+fn InstrumentChecks(
+    lab: ReadSignal<Option<super::SharedLab>>,
+    save: Callback<Lab>,
+) -> impl IntoView {
     use crate::lab::SCHEDULABLE_CHECKS;
     let stored = move |k: usize| {
         lab.with(|l| {
@@ -122,7 +127,7 @@ fn InstrumentChecks(lab: ReadSignal<Option<Lab>>, save: Callback<Lab>) -> impl I
             .collect();
         match entry::check_schedule(&texts) {
             Ok(list) => {
-                let Some(mut changed) = lab.get_untracked() else {
+                let Some(mut changed) = lab.get_untracked().map(|l| Lab::clone(&l)) else {
                     return set_message.set(Some("set up or load a lab first".into()));
                 };
                 changed.instrument_checks = list;
@@ -155,7 +160,7 @@ fn InstrumentChecks(lab: ReadSignal<Option<Lab>>, save: Callback<Lab>) -> impl I
 }
 
 #[component]
-fn Standards(lab: ReadSignal<Option<Lab>>, save: Callback<Lab>) -> impl IntoView {
+fn Standards(lab: ReadSignal<Option<super::SharedLab>>, save: Callback<Lab>) -> impl IntoView {
     let stored = move || {
         lab.with(|l| {
             l.as_ref()
@@ -168,7 +173,7 @@ fn Standards(lab: ReadSignal<Option<Lab>>, save: Callback<Lab>) -> impl IntoView
     let shown = move || text.get().unwrap_or_else(stored);
     let save_standards = move |_| match entry::absorbance_standards(&shown()) {
         Ok(list) => {
-            let Some(mut changed) = lab.get_untracked() else {
+            let Some(mut changed) = lab.get_untracked().map(|l| Lab::clone(&l)) else {
                 return set_message.set(Some("set up or load a lab first".into()));
             };
             changed.absorbance_standards = list;
@@ -201,7 +206,7 @@ fn Standards(lab: ReadSignal<Option<Lab>>, save: Callback<Lab>) -> impl IntoView
 
 #[component]
 fn NewTest(
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
 ) -> impl IntoView {
@@ -244,7 +249,9 @@ fn NewTest(
             Ok(m) => m,
             Err(e) => return set_message.set(Some(e)),
         };
-        let mut changed = lab.get_untracked().unwrap_or_else(|| Lab::empty("My lab"));
+        let mut changed = lab
+            .get_untracked()
+            .map_or_else(|| Lab::empty("My lab"), |l| Lab::clone(&l));
         match form.get_untracked().into_test(&changed, meta) {
             Ok(t) => {
                 let code = t.code.clone();
@@ -292,7 +299,7 @@ fn NewTest(
 
 #[component]
 fn NewLevel(
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     save: Callback<Lab>,
     technician: ReadSignal<String>,
     test_id: String,
@@ -305,7 +312,7 @@ fn NewLevel(
             Ok(m) => m,
             Err(e) => return set_message.set(Some(e)),
         };
-        let Some(mut changed) = lab.get_untracked() else {
+        let Some(mut changed) = lab.get_untracked().map(|l| Lab::clone(&l)) else {
             return;
         };
         match form.get_untracked().into_level(&test_id, meta) {

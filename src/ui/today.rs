@@ -13,7 +13,7 @@ use crate::lab::Lab;
 #[component]
 pub(super) fn TodayBoard(
     /// The lab being worked on.
-    lab: ReadSignal<Option<Lab>>,
+    lab: ReadSignal<Option<super::SharedLab>>,
     /// The current time, ticking.
     clock: ReadSignal<chrono::DateTime<Utc>>,
     /// Opens the view where a line is dealt with.

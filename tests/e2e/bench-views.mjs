@@ -6,6 +6,9 @@
 // ratio; the time to open each view; a first control value typed → its decision shown;
 // a QC run saved → its row shown; and the WebAssembly memory against the stored size.
 // Not part of the test suite: timings are never asserted. Invented data for measuring.
+// With CUVETTE_PROFILE=1 (best on a build with names, CUVETTE_APP=...), the typed value
+// and the save are also recorded by Chromium's CPU profiler and the functions with the
+// most time of their own are printed for each.
 import { readFileSync, writeFileSync } from "node:fs";
 import { fileURLToPath, pathToFileURL } from "node:url";
 import { openApp, newProfile, byTestId, waitReady, waitSaved } from "./helpers.mjs";
@@ -48,36 +51,83 @@ page.setDefaultTimeout(600_000);
 await waitReady(page, 600_000);
 await byTestId(page, "today-test").first().waitFor();
 const start = await page.evaluate(() => performance.now());
+// What the app timed itself (performance measures it leaves; see `timed` in src/ui).
+const measured = (name) => page.evaluate((n) => performance.getEntriesByName(n).at(-1)?.duration ?? NaN, name);
+const openJournal = await measured("cuvette:open-journal");
+const judgeAll = await measured("cuvette:verdicts-all");
 
-const timed = async (act, done) => {
-  const t0 = await page.evaluate(() => performance.now());
-  await act();
-  await done();
-  return (await page.evaluate(() => performance.now())) - t0;
-};
-// What the measuring itself costs: a no-op through the same round trips.
-const harness = await timed(() => page.evaluate(() => 0), () => page.waitForSelector("body"));
+// Each figure is taken in the page: from the input event (a click, a typed value)
+// to the first frame painted after what it changed is in the page, so Playwright's
+// own checks before an action are not counted. `act` and `done` are page functions.
+const inPage = (act, done, arg) => page.evaluate(([act, done, arg]) => new Promise((resolve, reject) => {
+  const actF = new Function("arg", act);
+  const doneF = new Function("arg", done);
+  const t0 = performance.now();
+  actF(arg);
+  const deadline = t0 + 600_000;
+  const check = () => {
+    if (doneF(arg)) requestAnimationFrame(() => resolve(performance.now() - t0));
+    else if (performance.now() > deadline) reject(new Error("not done: " + done));
+    else setTimeout(check, 0);
+  };
+  check();
+}), [act, done, arg]);
 const views = {};
 for (const v of ["runs", "charts", "calibration", "materials", "instrument", "records", "setup", "today"]) {
-  views[v] = await timed(
-    () => byTestId(page, `nav-${v}`).click(),
-    () => page.waitForSelector(`[data-testid=view-${v}]:not([hidden])`),
+  views[v] = await inPage(
+    `document.querySelector('[data-testid="nav-' + arg + '"]').click()`,
+    `const el = document.querySelector('[data-testid="view-' + arg + '"]'); return el && !el.hidden`,
+    v,
   );
 }
+// Chromium's sampling profiler over one action: the functions with the most self time.
+const profiling = Boolean(process.env.CUVETTE_PROFILE);
+const cdp = profiling ? await context.newCDPSession(page) : null;
+if (cdp) {
+  await cdp.send("Profiler.enable");
+  await cdp.send("Profiler.setSamplingInterval", { interval: 100 });
+}
+const profiles = [];
+const profiled = async (label, f) => {
+  if (!cdp) return f();
+  await cdp.send("Profiler.start");
+  const r = await f();
+  const { profile } = await cdp.send("Profiler.stop");
+  profiles.push([label, profile]);
+  return r;
+};
+const heaviest = (profile, n = 25) => {
+  const self = new Map();
+  const dt = new Map();
+  profile.samples.forEach((id, k) => dt.set(id, (dt.get(id) || 0) + (profile.timeDeltas[k] || 0)));
+  for (const node of profile.nodes) {
+    const name = node.callFrame.functionName || `(${node.callFrame.url.split("/").pop() || "program"})`;
+    self.set(name, (self.get(name) || 0) + (dt.get(node.id) || 0) / 1000);
+  }
+  const total = [...self.values()].reduce((a, b) => a + b, 0);
+  return [...self.entries()].sort((a, b) => b[1] - a[1]).slice(0, n)
+    .map(([f, t]) => `  ${t.toFixed(1).padStart(8)} ms ${(100 * t / total).toFixed(0).padStart(3)}%  ${f}`).join("\n");
+};
 await byTestId(page, "nav-runs").click();
 const card = byTestId(page, "runs-T00");
 await card.locator('[data-testid="new-run-T00"]').click();
-const preview = await timed(
-  () => card.locator('[data-testid="run-value-0"]').fill("96.1"),
-  () => card.locator(".run-preview").waitFor(),
-);
+const preview = await profiled("value typed", () => inPage(
+  `const el = document.querySelector('[data-testid="runs-T00"] [data-testid="run-value-0"]');
+   el.value = "96.1"; el.dispatchEvent(new Event("input", { bubbles: true }));`,
+  `return document.querySelector('[data-testid="runs-T00"] .run-preview') !== null`,
+));
 await card.locator('[data-testid="run-value-1"]').fill("262.0");
 const rows = await card.locator('[data-testid="qc-run"]').count();
-const save = await timed(
-  () => card.locator('[data-testid="save-run"]').click(),
-  () => page.waitForFunction((n) => document.querySelectorAll('[data-testid="runs-T00"] [data-testid="qc-run"]').length > n, rows),
-);
-await waitSaved(page, 600_000);
+const save = await profiled("run saved", async () => {
+  const t = await inPage(
+    `document.querySelector('[data-testid="runs-T00"] [data-testid="save-run"]').click()`,
+    `return document.querySelectorAll('[data-testid="runs-T00"] [data-testid="qc-run"]').length > arg`,
+    rows,
+  );
+  await waitSaved(page, 600_000);
+  return t;
+});
+const judgeChange = await measured("cuvette:verdicts-after-change");
 // The app's WebAssembly memory (the single file's boot script leaves it on globalThis).
 const memory = await page.evaluate(() => globalThis.cuvetteWasmMemory?.buffer.byteLength ?? 0);
 await context.close();
@@ -85,8 +135,10 @@ await context.close();
 const ms = (x) => `${x.toFixed(0)} ms`;
 console.log(`stored: ${Object.keys(store).length} keys, ${chars} characters`);
 console.log(`cold start to the Today board: ${ms(start)}; floor page (read and parse the same characters): ${ms(floor)}; start/floor = ${(start / floor).toFixed(1)} (budget 2)`);
-console.log(`the measuring's own round trips (included in every figure below): ${ms(harness)}`);
+console.log(`of which: the journal opened (read, checked, replayed) ${ms(openJournal)}; every test's QC judged as wasm ${judgeAll.toFixed(1)} ms`);
+console.log(`after the run saved, the QC verdicts brought up to date (its test judged again, the others kept): ${judgeChange.toFixed(2)} ms`);
 console.log(`open a view (budget 100 ms): ${Object.entries(views).map(([v, t]) => `${v} ${ms(t)}`).join(", ")}`);
 console.log(`first control value typed -> decision shown: ${ms(preview)} (budget 16 ms)`);
 console.log(`QC run saved -> its row shown: ${ms(save)} (budget 50 ms)`);
 console.log(`WebAssembly memory after the session: ${(memory / 1048576).toFixed(1)} MiB; stored ${(chars / 1048576).toFixed(1)} M characters; memory/stored = ${(memory / chars).toFixed(1)} (budget 3)`);
+for (const [label, profile] of profiles) console.log(`\nCPU profile, ${label} (self time):\n${heaviest(profile)}`);

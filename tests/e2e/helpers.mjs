@@ -10,7 +10,8 @@ import { join, resolve, dirname } from "node:path";
 import { fileURLToPath, pathToFileURL } from "node:url";
 
 const here = dirname(fileURLToPath(import.meta.url));
-export const singleFile = resolve(here, "../../dist/cuvette.html");
+// CUVETTE_APP names another build of the single file (a benchmark on a build with names).
+export const singleFile = process.env.CUVETTE_APP ? resolve(process.env.CUVETTE_APP) : resolve(here, "../../dist/cuvette.html");
 export const fileUrl = pathToFileURL(singleFile).href;
 
 // A test that fails before closing its browser must not keep the run waiting: every

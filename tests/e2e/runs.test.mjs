@@ -198,3 +198,50 @@ test("the QC runs view shows the chosen month or days only", async () => {
     await context.close();
   }
 });
+
+test("a saved run redraws its own test's card only, and a card kept from before saves onto the lab as it is now", async () => {
+  const profile = newProfile();
+  let { context, page, problems } = await openApp(profile);
+  const rows = (code) => byTestId(page, `runs-${code}`).locator('[data-testid="qc-run"]').count();
+  const saveRun = async (code, values) => {
+    const card = byTestId(page, `runs-${code}`);
+    const before = await rows(code);
+    await card.locator(`[data-testid="new-run-${code}"]`).click();
+    for (const [k, v] of values.entries()) await card.locator(`[data-testid="run-value-${k}"]`).fill(v);
+    await card.locator(".run-preview").waitFor();
+    await card.locator('[data-testid="save-run"]').click();
+    await page.waitForFunction(([c, n]) =>
+      document.querySelectorAll(`[data-testid="runs-${c}"] [data-testid="qc-run"]`).length > n, [code, before]);
+    await waitSaved(page);
+    return before;
+  };
+  try {
+    await byTestId(page, "nav-setup").click();
+    await byTestId(page, "load-demo").click();
+    await byTestId(page, "demo-banner").waitFor();
+    await byTestId(page, "initials").fill("kc");
+    await byTestId(page, "initials").press("Enter");
+    await byTestId(page, "nav-runs").click();
+    await byTestId(page, "runs-TP").waitFor();
+    // Mark the drawn cards: a card drawn again is a new element without the mark.
+    await page.evaluate(() => document.querySelectorAll('section[data-testid^="runs-"]').forEach((c) => { c.cuvetteMark = true; }));
+    const tp = await saveRun("TP", ["7.0", "4.6"]);
+    const marked = await page.evaluate(() =>
+      Object.fromEntries([...document.querySelectorAll('section[data-testid^="runs-"]')].map((c) => [c.dataset.testid, c.cuvetteMark === true])));
+    assert.equal(marked["runs-TP"], false, "the card of the test that changed is drawn again");
+    for (const [card, kept] of Object.entries(marked)) if (card !== "runs-TP") assert.equal(kept, true, `${card} is kept as it was`);
+    // The creatinine card was drawn before the total protein run: its run must not
+    // take that run away (a save from an old copy of the lab would void it).
+    const crea = await saveRun("CREA", ["1.0", "4.0"]);
+    assert.equal(await rows("TP"), tp + 1);
+    await context.close();
+    ({ context, page, problems } = await openApp(profile));
+    await byTestId(page, "nav-runs").click();
+    await byTestId(page, "runs-TP").waitFor();
+    assert.equal(await rows("TP"), tp + 1, "both runs are in the journal after a reload");
+    assert.equal(await rows("CREA"), crea + 1);
+    assert.deepEqual(problems, []);
+  } finally {
+    await context.close();
+  }
+});
