@@ -368,3 +368,13 @@ pub async fn read_text(file: web_sys::File) -> Result<String, StoreError> {
         .and_then(|v| v.as_string())
         .ok_or_else(|| StoreError(format!("{} could not be read as text", file.name())))
 }
+
+/// Let the page draw and answer before the next slice of a long piece of work.
+pub async fn next_task() {
+    let promise = js_sys::Promise::new(&mut |resolve, _| {
+        if let Some(w) = web_sys::window() {
+            let _ = w.set_timeout_with_callback_and_timeout_and_arguments_0(&resolve, 0);
+        }
+    });
+    let _ = wasm_bindgen_futures::JsFuture::from(promise).await;
+}

@@ -33,6 +33,8 @@ pub struct Shelf {
     /// How many times another tab's entries were taken in (the lab on screen changed
     /// under a save).
     taken_in: u64,
+    /// The localStorage copy's chunks are still to be checked against the journal.
+    mirror_unchecked: bool,
 }
 
 /// How the last save went.
@@ -204,14 +206,14 @@ pub async fn open(book: Book, db: Option<Db>) -> (Shelf, Vec<String>) {
              before it is intact"
         ));
     }
-    let read = mirror.read(&kv);
-    notes.extend(read.problems.iter().cloned());
+    let mut whole = true;
     let durable = match &db {
         Some(db) => match db.read(book.store_name(), 0).await {
             Ok((entries, unreadable)) => {
-                for (seq, _) in unreadable {
+                for (seq, _) in &unreadable {
                     notes.push(format!("journal entry {seq} in IndexedDB cannot be read"));
                 }
+                whole = unreadable.is_empty();
                 Some(entries)
             }
             Err(e) => {
@@ -221,7 +223,33 @@ pub async fn open(book: Book, db: Option<Db>) -> (Shelf, Vec<String>) {
         },
         None => None,
     };
-    let rec = journal::reconcile(durable.as_deref(), &read.entries);
+    // Where IndexedDB is whole and the copy's pointer names its count and last entry,
+    // the copy could only add what IndexedDB already has: its chunks are checked after
+    // the lab is shown ([`check_mirror`]), not before.
+    let stored_pointer = mirror.pointer(&kv).ok().flatten();
+    let deferred = match (&durable, &stored_pointer) {
+        (Some(d), Some(p)) => {
+            whole && p.count as usize == d.len() && d.last().is_some_and(|e| e.hash == p.head)
+        }
+        _ => false,
+    };
+    let read = if deferred {
+        crate::mirror::Read {
+            pointer: stored_pointer,
+            ..Default::default()
+        }
+    } else {
+        let read = mirror.read(&kv);
+        notes.extend(read.problems.iter().cloned());
+        read
+    };
+    let rec = match (deferred, durable) {
+        (true, Some(entries)) => journal::Reconciled {
+            entries,
+            ..Default::default()
+        },
+        (_, durable) => journal::reconcile(durable.as_deref(), &read.entries),
+    };
     notes.extend(rec.notes.iter().cloned());
     if let (Some(db), false) = (&db, rec.missing_in_durable.is_empty()) {
         if let Err(e) = db
@@ -232,7 +260,7 @@ pub async fn open(book: Book, db: Option<Db>) -> (Shelf, Vec<String>) {
         }
     }
     let skip = super::set_aside(book);
-    let head = (read.entries == rec.entries)
+    let head = (deferred || read.entries == rec.entries)
         .then(|| read.pointer.as_ref().map(|p| p.head.clone()))
         .flatten();
     let replay = journal::replay(&rec.entries, head.as_deref(), &skip);
@@ -246,10 +274,12 @@ pub async fn open(book: Book, db: Option<Db>) -> (Shelf, Vec<String>) {
         pointer: read.pointer,
         flushing: false,
         taken_in: 0,
+        mirror_unchecked: deferred,
     };
     // A copy that is only behind gets the missing entries; a damaged or different one
     // is written afresh.
-    let fresh = !read.problems.is_empty() || !shelf.entries.starts_with(&read.entries);
+    let fresh =
+        !deferred && (!read.problems.is_empty() || !shelf.entries.starts_with(&read.entries));
     if (rec.mirror_stale || fresh) && !shelf.entries.is_empty() && !shelf.write_mirror(fresh) {
         notes.push(
             "the localStorage copy could not be repaired: this browser's storage is full".into(),
@@ -269,6 +299,61 @@ pub async fn open(book: Book, db: Option<Db>) -> (Shelf, Vec<String>) {
         }
     }
     (shelf, notes)
+}
+
+/// Check the localStorage copy left unchecked at start, one chunk per task so the page
+/// stays responsive; a chunk that cannot be read or differs from the journal is
+/// reported and the copy written afresh from the journal. Returns what was found, in
+/// the words of the start-up report.
+pub async fn check_mirror(cell: &Rc<RefCell<Shelf>>) -> Vec<String> {
+    enum Step {
+        Good,
+        Done,
+        Bad(String),
+    }
+    let mut k = 0;
+    loop {
+        let step = {
+            let s = cell.borrow();
+            if !s.mirror_unchecked {
+                return Vec::new();
+            }
+            let mirror = s.mirror();
+            match mirror.pointer(&Local) {
+                Ok(Some(p)) if k < p.chunks.len() && p.count as usize <= s.entries.len() => {
+                    match mirror.check_chunk(&Local, &p, k, &s.entries) {
+                        Ok(()) => Step::Good,
+                        Err(why) => Step::Bad(why),
+                    }
+                }
+                // Checked to its end, or another tab wrote a newer copy (this tab takes
+                // its entries in; the next start checks that copy).
+                Ok(_) => Step::Done,
+                Err(why) => Step::Bad(why),
+            }
+        };
+        match step {
+            Step::Good => {}
+            Step::Done => {
+                cell.borrow_mut().mirror_unchecked = false;
+                return Vec::new();
+            }
+            Step::Bad(why) => {
+                let mut s = cell.borrow_mut();
+                s.mirror_unchecked = false;
+                let repaired = s.write_mirror(true);
+                return vec![if repaired {
+                    format!("{why}. The journal in IndexedDB was used and the copy rewritten")
+                } else {
+                    format!(
+                        "{why}. The copy could not be rewritten: this browser's storage is full"
+                    )
+                }];
+            }
+        }
+        k += 1;
+        super::next_task().await;
+    }
 }
 
 /// Commit what is unsaved, until nothing is; one flush at a time (a second call while
@@ -419,6 +504,7 @@ pub fn empty(book: Book, db: Option<Db>) -> Shelf {
         pointer: None,
         flushing: false,
         taken_in: 0,
+        mirror_unchecked: false,
     }
 }
 

@@ -485,6 +485,7 @@ fn Bench() -> impl IntoView {
         set_notes.set(found);
         set_save_state.set(SaveState::Saved(Utc::now()));
         show();
+        check_mirror_later(shelf, set_notes);
         if recovered {
             set_save_state.set(SaveState::Saving);
             flush();
@@ -571,6 +572,7 @@ fn Bench() -> impl IntoView {
             let unsaved = !opened.unsaved.is_empty();
             shelf.set_value(std::rc::Rc::new(std::cell::RefCell::new(opened)));
             set_notes.set(notes);
+            check_mirror_later(shelf, set_notes);
             set_book.set(target);
             if let Err(e) = store::set_open_book(target) {
                 set_problem.set(Some(e.0));
@@ -800,6 +802,18 @@ fn Bench() -> impl IntoView {
             </ViewPanel>
         </main>
     }
+}
+
+/// After the lab is shown: check the localStorage copy chunk by chunk, and add what
+/// was found to the start-up report.
+fn check_mirror_later(shelf: ShelfCell, set_notes: WriteSignal<Vec<String>>) {
+    let cell = shelf.get_value();
+    leptos::task::spawn_local(async move {
+        let found = store::shelf::check_mirror(&cell).await;
+        if !found.is_empty() {
+            set_notes.update(|n| n.extend(found));
+        }
+    });
 }
 
 /// The lab as one view sees it: the bench's lab while the view is shown, and the lab as

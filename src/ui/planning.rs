@@ -32,16 +32,6 @@ fn errors() -> Vec<Error> {
         .collect()
 }
 
-/// Let the page draw and answer before the next slice.
-async fn next_frame() {
-    let promise = js_sys::Promise::new(&mut |resolve, _| {
-        if let Some(w) = web_sys::window() {
-            let _ = w.set_timeout_with_callback_and_timeout_and_arguments_0(&resolve, 0);
-        }
-    });
-    let _ = wasm_bindgen_futures::JsFuture::from(promise).await;
-}
-
 /// One test's rejection probabilities.
 #[component]
 fn TestPlanning(
@@ -111,7 +101,7 @@ fn TestPlanning(
                                 set_progress.set(Some(
                                     (k * TRIALS + sim.done) as f64 / (all.len() * TRIALS) as f64,
                                 ));
-                                next_frame().await;
+                                crate::store::next_task().await;
                             }
                             sim.result()
                         }
