@@ -391,14 +391,6 @@ pub fn monthly_review<Tz: TimeZone>(
     let this = Month { year, month };
     let (from, to) = window(this)?;
     let (previous_from, _) = window(this.step(-1))?;
-    let between = |results: &[ControlResult], a: DateTime<Utc>, b: DateTime<Utc>| {
-        let within: Vec<ControlResult> = results
-            .iter()
-            .copied()
-            .filter(|r| a <= r.at && r.at < b)
-            .collect();
-        qcstats::cumulative(&within)
-    };
     let fmt = |v: Option<f64>, digits: usize| v.map_or(String::new(), |v| format!("{v:.digits$}"));
     let stats = |s: Option<&Summary>| -> [String; 4] {
         [
@@ -427,7 +419,7 @@ pub fn monthly_review<Tz: TimeZone>(
                     })
                 })
                 .collect();
-            let now = between(&results, from, to);
+            let now = qcstats::between(&results, from, to);
             let now = now.as_ref();
             let target = h.targets[k];
             let bias = now.map(|s| (s.mean - target.mean) / target.mean * 100.0);
@@ -479,7 +471,9 @@ pub fn monthly_review<Tz: TimeZone>(
             }));
             row.push(tally(&warnings));
             row.push(tally(&rejections));
-            row.extend(stats(between(&results, previous_from, from).as_ref()));
+            row.extend(stats(
+                qcstats::between(&results, previous_from, from).as_ref(),
+            ));
             // Cumulative up to the end of the month reviewed.
             let upto: Vec<ControlResult> = results.iter().copied().filter(|r| r.at < to).collect();
             row.extend(stats(qcstats::cumulative(&upto).as_ref()));

@@ -117,6 +117,11 @@ impl LabVerdicts {
         LabVerdicts { tests }
     }
 
+    /// True when no test was judged (no lab yet, or a lab without tests).
+    pub fn is_empty(&self) -> bool {
+        self.tests.is_empty()
+    }
+
     /// A test's verdicts (`None` for a test this lab state does not have).
     pub fn test(&self, test_id: &str) -> Option<&TestVerdicts> {
         self.tests.get(test_id).map(|(_, v)| v.as_ref())

@@ -6,7 +6,7 @@
 //! the sample SD (n − 1). A lab's own target needs at least 20 accepted results (common
 //! practice; CLSI C24 recommends 20 or more, over 20 days — from memory).
 
-use chrono::{DateTime, Datelike, TimeZone, Utc};
+use chrono::{DateTime, Utc};
 use serde::{Deserialize, Serialize};
 use statrs::statistics::Statistics;
 
@@ -88,25 +88,6 @@ pub fn between(
     cumulative(&in_period)
 }
 
-/// Statistics per calendar month ("YYYY-MM" in the lab's local time), oldest first.
-pub fn by_month<Tz: TimeZone>(results: &[ControlResult], tz: &Tz) -> Vec<(String, Summary)> {
-    let mut months: Vec<(String, Vec<f64>)> = Vec::new();
-    let mut sorted: Vec<&ControlResult> = results.iter().filter(|r| r.counts()).collect();
-    sorted.sort_by_key(|r| r.at);
-    for r in sorted {
-        let local = r.at.with_timezone(tz).naive_local();
-        let key = format!("{:04}-{:02}", local.year(), local.month());
-        match months.last_mut() {
-            Some((k, v)) if *k == key => v.push(r.value),
-            _ => months.push((key, vec![r.value])),
-        }
-    }
-    months
-        .into_iter()
-        .filter_map(|(k, v)| summarize(&v).map(|s| (k, s)))
-        .collect()
-}
-
 /// Where a level's target comes from.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(tag = "source", rename_all = "kebab-case")]
@@ -153,6 +134,7 @@ pub fn choose_target(insert: Option<LevelTarget>, results: &[ControlResult]) -> 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use chrono::TimeZone;
 
     fn at(day: u32) -> DateTime<Utc> {
         Utc.with_ymd_and_hms(2026, 10, 1, 8, 0, 0).unwrap() + chrono::Duration::days(day as i64)
@@ -209,11 +191,5 @@ mod tests {
         assert!(t.mean > 100.0 && t.mean < 102.0);
         let first_week = between(&results, at(0), at(7)).unwrap();
         assert_eq!(first_week.n, 7);
-        let months = by_month(&results, &Utc);
-        assert_eq!(
-            months.iter().map(|m| m.0.as_str()).collect::<Vec<_>>(),
-            vec!["2026-10"]
-        );
-        assert_eq!(months[0].1.n, 20);
     }
 }

@@ -76,14 +76,15 @@ impl Shelf {
         reason: Option<&str>,
     ) -> Result<usize, ChangeError> {
         let changes = journal::changes(&self.replay.lab, new);
-        let entries = journal::entries_for(
-            &changes,
-            &self.replay.version_numbers(),
-            &self.replay.tip,
-            at,
-            by,
-            reason,
-        )?;
+        // The current versions of the changed records only (not a copy of every one).
+        let versions = changes
+            .iter()
+            .filter_map(|c| {
+                let (v, _) = self.replay.versions.get(&c.id)?;
+                Some((c.id.clone(), *v))
+            })
+            .collect();
+        let entries = journal::entries_for(&changes, &versions, &self.replay.tip, at, by, reason)?;
         self.replay.extend(&entries, None, &[]);
         let n = entries.len();
         self.unsaved.extend(entries);

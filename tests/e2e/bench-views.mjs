@@ -51,8 +51,8 @@ page.setDefaultTimeout(600_000);
 await waitReady(page, 600_000);
 await byTestId(page, "today-test").first().waitFor();
 const start = await page.evaluate(() => performance.now());
-// What the app timed itself (performance measures it leaves; see `timed` in src/ui).
-const measured = (name) => page.evaluate((n) => performance.getEntriesByName(n).at(-1)?.duration ?? NaN, name);
+// What the app timed itself (left in globalThis.cuvetteTimings; see `timed` in src/ui).
+const measured = (name) => page.evaluate((n) => globalThis.cuvetteTimings?.[n] ?? NaN, name);
 const openJournal = await measured("cuvette:open-journal");
 const judgeAll = await measured("cuvette:verdicts-all");
 
