@@ -59,19 +59,27 @@ const judgeAll = await measured("cuvette:verdicts-all");
 // Each figure is taken in the page: from the input event (a click, a typed value)
 // to the first frame painted after what it changed is in the page, so Playwright's
 // own checks before an action are not counted. `act` and `done` are page functions.
-const inPage = (act, done, arg) => page.evaluate(([act, done, arg]) => new Promise((resolve, reject) => {
+// `inPage` gives the painted time; `inPageBoth` also when the page first held the
+// change (a DOM observer sees it), which a frame's wait (up to 16.7 ms) does not blur.
+const inPageBoth = (act, done, arg) => page.evaluate(([act, done, arg]) => new Promise((resolve, reject) => {
   const actF = new Function("arg", act);
   const doneF = new Function("arg", done);
+  let settled = false;
   const t0 = performance.now();
-  actF(arg);
-  const deadline = t0 + 600_000;
-  const check = () => {
-    if (doneF(arg)) requestAnimationFrame(() => resolve(performance.now() - t0));
-    else if (performance.now() > deadline) reject(new Error("not done: " + done));
-    else setTimeout(check, 0);
+  const finish = () => {
+    if (settled) return;
+    settled = true;
+    observer.disconnect();
+    const dom = performance.now() - t0;
+    requestAnimationFrame(() => resolve({ dom, painted: performance.now() - t0 }));
   };
-  check();
+  const observer = new MutationObserver(() => { if (doneF(arg)) finish(); });
+  observer.observe(document.body, { subtree: true, childList: true, attributes: true, characterData: true });
+  actF(arg);
+  if (doneF(arg)) finish();
+  setTimeout(() => { if (!settled) { observer.disconnect(); reject(new Error("not done: " + done)); } }, 600_000);
 }), [act, done, arg]);
+const inPage = async (act, done, arg) => (await inPageBoth(act, done, arg)).painted;
 const views = {};
 for (const v of ["runs", "charts", "calibration", "materials", "instrument", "records", "setup", "today"]) {
   views[v] = await inPage(
@@ -111,7 +119,7 @@ const heaviest = (profile, n = 25) => {
 await byTestId(page, "nav-runs").click();
 const card = byTestId(page, "runs-T00");
 await card.locator('[data-testid="new-run-T00"]').click();
-const preview = await profiled("value typed", () => inPage(
+const preview = await profiled("value typed", () => inPageBoth(
   `const el = document.querySelector('[data-testid="runs-T00"] [data-testid="run-value-0"]');
    el.value = "96.1"; el.dispatchEvent(new Event("input", { bubbles: true }));`,
   `return document.querySelector('[data-testid="runs-T00"] .run-preview') !== null`,
@@ -119,7 +127,7 @@ const preview = await profiled("value typed", () => inPage(
 await card.locator('[data-testid="run-value-1"]').fill("262.0");
 const rows = await card.locator('[data-testid="qc-run"]').count();
 const save = await profiled("run saved", async () => {
-  const t = await inPage(
+  const t = await inPageBoth(
     `document.querySelector('[data-testid="runs-T00"] [data-testid="save-run"]').click()`,
     `return document.querySelectorAll('[data-testid="runs-T00"] [data-testid="qc-run"]').length > arg`,
     rows,
@@ -138,7 +146,7 @@ console.log(`cold start to the Today board: ${ms(start)}; floor page (read and p
 console.log(`of which: the journal opened (read, checked, replayed) ${ms(openJournal)}; every test's QC judged as wasm ${judgeAll.toFixed(1)} ms`);
 console.log(`after the run saved, the QC verdicts brought up to date (its test judged again, the others kept): ${judgeChange.toFixed(2)} ms`);
 console.log(`open a view (budget 100 ms): ${Object.entries(views).map(([v, t]) => `${v} ${ms(t)}`).join(", ")}`);
-console.log(`first control value typed -> decision shown: ${ms(preview)} (budget 16 ms)`);
-console.log(`QC run saved -> its row shown: ${ms(save)} (budget 50 ms)`);
+console.log(`first control value typed -> decision in the page ${preview.dom.toFixed(1)} ms, painted ${ms(preview.painted)} (budget 16 ms)`);
+console.log(`QC run saved -> its row in the page ${ms(save.dom)}, painted ${ms(save.painted)} (budget 50 ms)`);
 console.log(`WebAssembly memory after the session: ${(memory / 1048576).toFixed(1)} MiB; stored ${(chars / 1048576).toFixed(1)} M characters; memory/stored = ${(memory / chars).toFixed(1)} (budget 3)`);
 for (const [label, profile] of profiles) console.log(`\nCPU profile, ${label} (self time):\n${heaviest(profile)}`);
