@@ -320,6 +320,8 @@ pub(crate) struct Trail {
     pub history_of: RwSignal<Option<String>>,
     /// Bumped whenever the journal changed (for the trail and history views).
     pub revision: ReadSignal<u64>,
+    /// Bumped after each commit reached the stores (for the storage figures).
+    pub committed: ReadSignal<u64>,
     pub shelf: ShelfCell,
 }
 
@@ -378,6 +380,7 @@ fn Bench() -> impl IntoView {
     let (notes, set_notes) = signal::<Vec<String>>(Vec::new());
     let (book, set_book) = signal(store::open_book());
     let (revision, set_revision) = signal(0u64);
+    let (committed, set_committed) = signal(0u64);
     let (sheet, set_sheet) = signal(None::<exchange::Sheet>);
     let history_of = RwSignal::new(None::<String>);
     let shelf: ShelfCell = StoredValue::new_local(std::rc::Rc::new(std::cell::RefCell::new(
@@ -434,6 +437,7 @@ fn Bench() -> impl IntoView {
                     t.announce(book)
                 }
             });
+            set_committed.update(|c| *c += 1);
             // The lab on screen already holds the change; it is drawn again only when
             // another tab's entries were taken in on the way.
             if cell.borrow().taken_in() != taken_in {
@@ -644,6 +648,7 @@ fn Bench() -> impl IntoView {
         refresh,
         history_of,
         revision,
+        committed,
         shelf,
     });
     // Each view draws the lab, and follows the clock, only while it is shown.

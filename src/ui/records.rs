@@ -238,7 +238,8 @@ fn first_entry_time(trail: &Trail) -> Option<chrono::DateTime<Utc>> {
     s.entries.iter().map(|e| e.at).min()
 }
 
-/// The storage meter on the records view.
+/// The storage meter on the records view (drawn again on a change and after each
+/// commit reached the stores).
 #[component]
 pub fn StorageMeter(
     /// The lab being worked on (redraws on change).
@@ -249,6 +250,7 @@ pub fn StorageMeter(
     let trail = expect_context::<Trail>();
     move || {
         lab.track();
+        trail.committed.track();
         let (all, ours, left, months) = storage_figures(clock.get(), first_entry_time(&trail));
         let results: usize = lab.with(|l| l.as_ref().map_or(0, |l| l.qc_result_count()));
         let per = (results > 0).then(|| ours as f64 / results as f64);
@@ -283,6 +285,7 @@ pub fn StorageWarning(
     let trail = expect_context::<Trail>();
     move || {
         lab.track();
+        trail.committed.track();
         let (_, _, left, _) = storage_figures(clock.get(), first_entry_time(&trail));
         (left < 0.2).then(|| view! {
             <p class="problem" data-testid="storage-low">{format!(
