@@ -628,6 +628,24 @@ impl Replay {
     /// Apply entries that follow the tip (see [`replay`]); each is checked against its
     /// hash and the link to the one before.
     pub fn extend(&mut self, entries: &[Entry], head: Option<&str>, skip: &[u64]) {
+        self.extend_checked(entries, head, skip, true);
+    }
+
+    /// Apply entries this program has just sealed ([`Entry::seal`]: a save, an import
+    /// renumbered after the tip, the demo's founding): their hashes were computed
+    /// moments ago, so they are not computed again; the links are still checked. Never
+    /// for entries read from storage or a file.
+    pub fn extend_sealed(&mut self, entries: &[Entry]) {
+        self.extend_checked(entries, None, &[], false);
+    }
+
+    fn extend_checked(
+        &mut self,
+        entries: &[Entry],
+        head: Option<&str>,
+        skip: &[u64],
+        hashes: bool,
+    ) {
         for (k, e) in entries.iter().enumerate() {
             let aside = |why: String| SetAside {
                 seq: e.seq,
@@ -653,7 +671,7 @@ impl Replay {
             };
             // Edited content no longer matches its own hash; an edited and re-sealed
             // entry no longer matches the link the next entry (or the head) holds.
-            if e.computed_hash() != e.hash || next_prev.is_some_and(|p| p != e.hash) {
+            if (hashes && e.computed_hash() != e.hash) || next_prev.is_some_and(|p| p != e.hash) {
                 self.set_aside.push(aside(format!(
                     "entry {} ({} {}) was changed outside Cuvette: its content no longer \
                      matches its SHA-256",
@@ -941,6 +959,30 @@ mod tests {
         assert!(r.set_aside.is_empty(), "{:?}", r.set_aside);
         assert_eq!(r.lab, lab);
         assert_eq!(r.tip.next_seq as usize, entries.len() + 1);
+    }
+
+    /// Entries just sealed here replay to the same state whether or not their hashes
+    /// are computed again; an entry edited after sealing is caught only by the check
+    /// that computes them (which every start-up and every read of another tab's
+    /// entries uses).
+    #[test]
+    fn sealed_entries_replay_alike_and_only_the_full_check_catches_an_edit() {
+        let lab = crate::demo::demo_lab();
+        let entries = founding_entries(&lab, at("2026-11-27T09:00:00Z"), "AK");
+        let mut sealed = Replay::empty();
+        sealed.extend_sealed(&entries);
+        let checked = replay(&entries, None, &[]);
+        assert_eq!(sealed.lab, checked.lab);
+        assert_eq!(sealed.tip, checked.tip);
+        assert_eq!(sealed.version_numbers(), checked.version_numbers());
+        assert!(sealed.set_aside.is_empty() && sealed.gaps.is_empty());
+        let mut edited = entries.clone();
+        let k = edited.len() / 2;
+        edited[k].by = "ZZ".into();
+        assert_eq!(replay(&edited, None, &[]).set_aside.len(), 1);
+        let mut trusting = Replay::empty();
+        trusting.extend_sealed(&edited);
+        assert!(trusting.set_aside.is_empty());
     }
 
     #[test]

@@ -85,7 +85,7 @@ impl Shelf {
             })
             .collect();
         let entries = journal::entries_for(&changes, &versions, &self.replay.tip, at, by, reason)?;
-        self.replay.extend(&entries, None, &[]);
+        self.replay.extend_sealed(&entries);
         let n = entries.len();
         self.unsaved.extend(entries);
         self.keep_pending();
@@ -95,7 +95,7 @@ impl Shelf {
     /// Entries of a whole lab, made in one go (the demo started, a one-key lab brought in).
     pub fn found(&mut self, lab: &Lab, at: DateTime<Utc>, by: &str) {
         let entries = journal::founding_entries(lab, at, by);
-        self.replay.extend(&entries, None, &[]);
+        self.replay.extend_sealed(&entries);
         self.unsaved.extend(entries);
         self.keep_pending();
     }
@@ -110,7 +110,7 @@ impl Shelf {
     /// Entries made elsewhere and checked (an import), already numbered after the tip:
     /// shown at once, not yet saved.
     pub fn append(&mut self, entries: Vec<Entry>) {
-        self.replay.extend(&entries, None, &[]);
+        self.replay.extend_sealed(&entries);
         self.unsaved.extend(entries);
         self.keep_pending();
     }
@@ -181,7 +181,7 @@ impl Shelf {
             e.prev = self.replay.tip.hash.clone();
             e.version = self.replay.versions.get(&e.id).map_or(1, |(v, _)| v + 1);
             let e = e.seal();
-            self.replay.extend(std::slice::from_ref(&e), None, &[]);
+            self.replay.extend_sealed(std::slice::from_ref(&e));
             self.unsaved.push(e);
         }
         self.keep_pending();
