@@ -892,6 +892,21 @@ pub struct Reconciled {
     pub notes: Vec<String>,
 }
 
+/// The start-up report's words for a localStorage copy that differs from the journal
+/// from entry `e` on.
+pub fn copy_differs_from(e: &Entry) -> String {
+    format!(
+        "the localStorage copy differs from the journal from entry {} ({} {}) on: it was \
+         changed outside Cuvette",
+        e.seq,
+        e.kind.words(),
+        e.id
+    )
+}
+
+/// What was done about a damaged or different localStorage copy.
+pub const COPY_REWRITTEN: &str = "The journal in IndexedDB was used and the copy rewritten";
+
 /// Decide the journal from both copies. Where both hold an entry number they must be
 /// equal; where they differ the durable copy is used and the difference reported.
 pub fn reconcile(durable: Option<&[Entry]>, mirror: &[Entry]) -> Reconciled {
@@ -908,13 +923,9 @@ pub fn reconcile(durable: Option<&[Entry]>, mirror: &[Entry]) -> Reconciled {
         .count();
     let mut out = Reconciled::default();
     if same < durable.len().min(mirror.len()) {
-        let e = &durable[same];
         out.notes.push(format!(
-            "the localStorage copy differs from the journal from entry {} ({} {}) on: it was \
-             changed outside Cuvette. The journal in IndexedDB was used and the copy rewritten",
-            e.seq,
-            e.kind.words(),
-            e.id
+            "{}. {COPY_REWRITTEN}",
+            copy_differs_from(&durable[same])
         ));
         out.entries = durable.to_vec();
         out.mirror_stale = true;

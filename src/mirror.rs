@@ -154,13 +154,7 @@ impl Mirror {
             .position(|(a, b)| a != b)
             .unwrap_or(held.len().min(expected.len()));
         match expected.get(at).or(expected.last()) {
-            Some(e) => Err(format!(
-                "the localStorage copy differs from the journal from entry {} ({} {}) on: it was \
-                 changed outside Cuvette",
-                e.seq,
-                e.kind.words(),
-                e.id
-            )),
+            Some(e) => Err(crate::journal::copy_differs_from(e)),
             None => Err(format!(
                 "the stored chunk {key} holds entries the journal does not have"
             )),

@@ -344,7 +344,7 @@ pub async fn check_mirror(cell: &Rc<RefCell<Shelf>>) -> Vec<String> {
                 s.mirror_unchecked = false;
                 let repaired = s.write_mirror(true);
                 return vec![if repaired {
-                    format!("{why}. The journal in IndexedDB was used and the copy rewritten")
+                    format!("{why}. {}", journal::COPY_REWRITTEN)
                 } else {
                     format!(
                         "{why}. The copy could not be rewritten: this browser's storage is full"
