@@ -261,6 +261,8 @@ pub enum MaterialKind {
 pub struct ControlHistory<'a> {
     pub levels: Vec<&'a ControlLevel>,
     pub runs: Vec<&'a ControlRun>,
+    /// Where each of `runs` is in `Lab::control_runs` (what a view holds).
+    pub positions: Vec<usize>,
     pub targets: Vec<crate::engine::qc::LevelTarget>,
     /// values[run][level]
     pub values: Vec<Vec<Option<f64>>>,
@@ -1019,7 +1021,8 @@ impl Lab {
     /// (oldest first), each level's value in set-up order (`None` where not run).
     pub fn control_history(&self, test_id: &str) -> ControlHistory<'_> {
         let levels = self.levels_of(test_id);
-        let runs = self.runs_of(test_id);
+        let positions = self.run_positions(test_id);
+        let runs: Vec<&ControlRun> = positions.iter().map(|&k| &self.control_runs[k]).collect();
         let values = runs
             .iter()
             .map(|r| {
@@ -1044,6 +1047,7 @@ impl Lab {
         ControlHistory {
             levels,
             runs,
+            positions,
             targets,
             values,
         }
