@@ -16,6 +16,7 @@ oursq=$(ours fit_quadratic_pontius)
 crate4=$(ours fit_4pl_ryegrass_lm_crate)
 crate5=$(ours fit_5pl_ryegrass_lm_crate)
 solve_ours=$(ours solve_4pl_ryegrass_engine_from_p0)
+solve_small=$(ours solve_4pl_ryegrass_small_from_p0)
 solve_crate=$(ours solve_4pl_ryegrass_lm_crate_from_p0)
 read -r scipy4 scipy5 numpyl numpyq < <(REF="$REF" python3 - <<'PY'
 import os, timeit, warnings
@@ -44,13 +45,13 @@ print(best(lambda: curve_fit(f4, x, y, p0=[8, 2, 3, 0.5], method="lm")),
       best(lambda: np.polyfit(xp, yp, 2)))
 PY
 )
-python3 - "$ours4" "$scipy4" "$ours5" "$scipy5" "$oursl" "$numpyl" "$oursq" "$numpyq" "$crate4" "$crate5" "$solve_ours" "$solve_crate" <<'PY'
+python3 - "$ours4" "$scipy4" "$ours5" "$scipy5" "$oursl" "$numpyl" "$oursq" "$numpyq" "$crate4" "$crate5" "$solve_ours" "$solve_crate" "$solve_small" <<'PY'
 import sys
-o4, s4, o5, s5, ol, nl, oq, nq, c4, c5, so, sc = map(float, sys.argv[1:])
+o4, s4, o5, s5, ol, nl, oq, nq, c4, c5, so, sc, ss = map(float, sys.argv[1:])
 print(f"4PL fit of ryegrass (24 points): cuvette {o4/1000:.1f} µs, scipy curve_fit {s4/1000:.1f} µs (from a hand p0); ratio scipy / cuvette = {s4/o4:.2f}")
 print(f"5PL fit of ryegrass (24 points): cuvette {o5/1000:.1f} µs (4PL first, then 5PL), scipy curve_fit {s5/1000:.1f} µs (from the 4PL optimum); ratio scipy / cuvette = {s5/o5:.2f}")
 print(f"linear fit of NIST Norris (36 points): cuvette {ol/1000:.2f} µs, numpy.polyfit {nl/1000:.2f} µs; ratio numpy / cuvette = {nl/ol:.2f}")
 print(f"levenberg-marquardt crate: 4PL {c4/1000:.1f} µs, 5PL {c5/1000:.1f} µs (from scipy's starts); ratio crate / cuvette = {c4/o4:.2f} and {c5/o5:.2f}")
-print(f"the solvers alone, 4PL from scipy's p0: cuvette {so/1000:.1f} µs, crate {sc/1000:.1f} µs; ratio crate / cuvette = {sc/so:.2f}")
+print(f"the solvers alone, 4PL from scipy's p0 on the 24 residuals: cuvette's fixed-size {ss/1000:.1f} µs, its SVD one (NIST checks) {so/1000:.1f} µs, crate {sc/1000:.1f} µs; ratio crate / fixed-size = {sc/ss:.2f}, crate / SVD = {sc/so:.2f}")
 print(f"quadratic fit of NIST Pontius (40 points): cuvette {oq/1000:.2f} µs, numpy.polyfit {nq/1000:.2f} µs; ratio numpy / cuvette = {nq/oq:.2f}")
 PY

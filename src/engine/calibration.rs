@@ -19,11 +19,12 @@
 //! observed signal. RSS is weighted where weighted; R² = 1 − RSS/TSS with TSS about the
 //! (weighted) mean signal, also for fits through the origin.
 
-use nalgebra::{DMatrix, DVector};
+use nalgebra::{SMatrix, SVector};
 use serde::{Deserialize, Serialize};
 use std::fmt;
 
-use super::lm::{self, LeastSquaresProblem, Settings};
+use super::lm::{self, Settings};
+use super::small_lm;
 
 /// Which calibration function.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -711,7 +712,22 @@ pub fn fit(
     };
 
     let w = |i: usize| weights.as_ref().map_or(1.0, |w| w[i]);
-    let fitted: Vec<f64> = x.iter().map(|&c| curve.signal_at(c)).collect();
+    // A logistic curve costs a `powf` a point: replicates reuse their concentration's.
+    let mut seen: Vec<(f64, f64)> = Vec::with_capacity(x.len());
+    let fitted: Vec<f64> = if matches!(curve, Curve::FourPl { .. } | Curve::FivePl { .. }) {
+        x.iter()
+            .map(|&c| match seen.iter().find(|s| s.0 == c) {
+                Some(s) => s.1,
+                None => {
+                    let f = curve.signal_at(c);
+                    seen.push((c, f));
+                    f
+                }
+            })
+            .collect()
+    } else {
+        x.iter().map(|&c| curve.signal_at(c)).collect()
+    };
     let rss: f64 = (0..y.len())
         .map(|i| w(i) * (y[i] - fitted[i]).powi(2))
         .sum();
@@ -787,7 +803,8 @@ struct Polynomial {
     se: Option<Vec<f64>>,
 }
 
-/// Weighted least-squares polynomial of `degree` by QR on a scaled Vandermonde matrix.
+/// Weighted least-squares polynomial of `degree` (1 or 2), with or without the
+/// constant term (without: degree 1 only, the line through the origin).
 fn polynomial(
     x: &[f64],
     y: &[f64],
@@ -795,144 +812,249 @@ fn polynomial(
     degree: usize,
     constant: bool,
 ) -> Result<Polynomial, CalibrationError> {
-    let powers: Vec<i32> = (if constant { 0 } else { 1 }..=degree as i32).collect();
-    let m = x.len();
-    let n = powers.len();
-    let scale = x.iter().fold(0.0_f64, |a, &v| a.max(v.abs()));
-    if scale == 0.0 || m < n {
-        return Err(CalibrationError::new(
-            CalErrorKind::Undetermined,
-            "the calibrators do not determine this curve: measure more concentrations",
-        ));
+    match (degree, constant) {
+        (1, false) => through_origin(x, y, w),
+        (1, true) => centred_polynomial::<2>(x, y, w),
+        (2, true) => centred_polynomial::<3>(x, y, w),
+        _ => Err(undetermined()),
     }
-    let mut a = DMatrix::zeros(m, n);
-    let mut b = DVector::zeros(m);
-    for i in 0..m {
-        let rw = w.map_or(1.0, |w| w[i].sqrt());
-        let t = x[i] / scale;
-        for (j, &p) in powers.iter().enumerate() {
-            a[(i, j)] = rw * t.powi(p);
-        }
-        b[i] = rw * y[i];
+}
+
+fn undetermined() -> CalibrationError {
+    CalibrationError::new(
+        CalErrorKind::Undetermined,
+        "the calibrator concentrations do not determine this curve (too few distinct \
+         concentrations); measure more levels or choose a simpler model",
+    )
+}
+
+/// y = β·x: β = Σwxy / Σwx², var β = s² / Σwx² with s² = RSS / (n − 1).
+fn through_origin(x: &[f64], y: &[f64], w: Option<&[f64]>) -> Result<Polynomial, CalibrationError> {
+    let wt = |i: usize| w.map_or(1.0, |w| w[i]);
+    let (sxx, sxy) = (0..x.len()).fold((0.0, 0.0), |(sxx, sxy), i| {
+        (sxx + wt(i) * x[i] * x[i], sxy + wt(i) * x[i] * y[i])
+    });
+    if sxx.is_nan() || sxx <= 0.0 {
+        return Err(undetermined());
     }
-    let qr = a.qr();
-    let r = qr.r();
-    let q = qr.q();
-    let rmax = (0..n).map(|k| r[(k, k)].abs()).fold(0.0, f64::max);
-    if (0..n).any(|k| r[(k, k)].abs() <= 1e-13 * rmax) {
-        return Err(CalibrationError::new(
-            CalErrorKind::Undetermined,
-            "the calibrator concentrations do not determine this curve (too few distinct \
-             concentrations); measure more levels or choose a simpler model",
-        ));
+    let slope = sxy / sxx;
+    let se = (x.len() > 1).then(|| {
+        let rss: f64 = (0..x.len())
+            .map(|i| wt(i) * (y[i] - slope * x[i]).powi(2))
+            .sum();
+        (rss / (x.len() - 1) as f64 / sxx).sqrt()
+    });
+    Ok(Polynomial {
+        coef: vec![slope],
+        se: se.map(|s| vec![s]),
+    })
+}
+
+/// Polynomial with N coefficients (1, x, x², …) by the normal equations in
+/// t = (x − m)/h, the concentrations mapped onto [−1, 1]. There the monomials are
+/// nearly orthogonal (the Gram matrix of 1, t, t² has a condition number of a few tens
+/// for spread calibrators, against 10¹⁰ and more in raw units), so a Cholesky on N×N
+/// keeps the digits a QR would (NIST Pontius to 10 digits, Norris to 12, in the
+/// tests), without forming or storing the design matrix. The coefficients and their
+/// covariance come back to powers of x through t's exact linear map.
+fn centred_polynomial<const N: usize>(
+    x: &[f64],
+    y: &[f64],
+    w: Option<&[f64]>,
+) -> Result<Polynomial, CalibrationError> {
+    let wt = |i: usize| w.map_or(1.0, |w| w[i]);
+    let (lo, hi) = x
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
+            (lo.min(v), hi.max(v))
+        });
+    let (mid, half) = (0.5 * (lo + hi), 0.5 * (hi - lo));
+    if half.is_nan() || half <= 0.0 || x.len() < N {
+        return Err(undetermined());
     }
-    let qtb = q.transpose() * &b;
-    let scaled = r.solve_upper_triangular(&qtb).ok_or_else(|| {
-        CalibrationError::new(
-            CalErrorKind::Undetermined,
-            "the least-squares system is singular",
-        )
-    })?;
-    let unscale = |j: usize| scale.powi(powers[j]);
-    let coef_scaled: Vec<f64> = (0..n).map(|j| scaled[j]).collect();
-    let coef: Vec<f64> = (0..n).map(|j| coef_scaled[j] / unscale(j)).collect();
-    let se = if m > n {
-        let resid = &b - &q * (&r * &scaled);
-        let s2 = resid.norm_squared() / (m - n) as f64;
-        r.clone().try_inverse().map(|rinv| {
-            (0..n)
-                .map(|j| (s2 * rinv.row(j).norm_squared()).sqrt() / unscale(j))
-                .collect()
-        })
-    } else {
-        None
+    let basis = |v: f64| -> SVector<f64, N> {
+        let t = (v - mid) / half;
+        SVector::from_fn(|k, _| t.powi(k as i32))
     };
-    Ok(Polynomial { coef, se })
-}
-
-/// The 4PL / 5PL least-squares problem for the LM core: p = [a, b, c, d] or
-/// [a, b, c, d, g]. ln(conc) is computed once per point, so an evaluation costs one
-/// `exp` per point (4PL) and the gradient reuses it.
-struct LogisticProblem<'a> {
-    five: bool,
-    /// ln(conc), `None` at conc 0.
-    ln_x: Vec<Option<f64>>,
-    y: &'a [f64],
-    /// √weight per point.
-    root_w: Vec<f64>,
-}
-
-impl<'a> LogisticProblem<'a> {
-    fn new(five: bool, x: &[f64], y: &'a [f64], w: Option<&[f64]>) -> Self {
-        LogisticProblem {
-            five,
-            ln_x: x.iter().map(|&v| (v > 0.0).then(|| v.ln())).collect(),
-            y,
-            root_w: (0..x.len())
-                .map(|i| w.map_or(1.0, |w| w[i].sqrt()))
-                .collect(),
-        }
-    }
-
-    /// u = (x/c)^b and ln(x/c) for point i; u = 0 at conc 0 (only for b > 0).
-    fn u(&self, i: usize, b: f64, ln_c: f64) -> Option<(f64, f64)> {
-        match self.ln_x[i] {
-            None => (b > 0.0).then_some((0.0, 0.0)),
-            Some(lx) => {
-                let l = lx - ln_c;
-                Some(((b * l).exp(), l))
+    let mut gram = SMatrix::<f64, N, N>::zeros();
+    let mut rhs = SVector::<f64, N>::zeros();
+    for i in 0..x.len() {
+        let phi = basis(x[i]);
+        let wi = wt(i);
+        for j in 0..N {
+            rhs[j] += wi * phi[j] * y[i];
+            for k in j..N {
+                gram[(j, k)] += wi * phi[j] * phi[k];
             }
         }
     }
-
-    fn g(&self, p: &[f64]) -> Option<f64> {
-        let g = if self.five { p[4] } else { 1.0 };
-        (g > 0.0 && p[2] > 0.0).then_some(g)
+    gram.fill_lower_triangle_with_upper_triangle();
+    // Refuse a Gram matrix too ill-conditioned to trust (its 1-norm condition number,
+    // scaled to a unit diagonal, beyond 1e14: the calibrators nearly coincide).
+    let d: [f64; N] = std::array::from_fn(|j| gram[(j, j)].sqrt());
+    let scaled = SMatrix::<f64, N, N>::from_fn(|i, j| gram[(i, j)] / (d[i] * d[j]));
+    let chol = scaled.cholesky().ok_or_else(undetermined)?;
+    let inverse_scaled = chol.inverse();
+    let norm1 = |m: &SMatrix<f64, N, N>| {
+        (0..N)
+            .map(|j| m.column(j).iter().map(|v| v.abs()).sum::<f64>())
+            .fold(0.0, f64::max)
+    };
+    let condition = norm1(&scaled) * norm1(&inverse_scaled);
+    if condition.is_nan() || condition > 1e14 {
+        return Err(undetermined());
     }
-}
-
-impl LeastSquaresProblem for LogisticProblem<'_> {
-    fn n_residuals(&self) -> usize {
-        self.y.len()
-    }
-    fn n_params(&self) -> usize {
-        if self.five {
-            5
+    let rhs_scaled = SVector::<f64, N>::from_fn(|j, _| rhs[j] / d[j]);
+    let beta_scaled = chol.solve(&rhs_scaled);
+    let beta = SVector::<f64, N>::from_fn(|j, _| beta_scaled[j] / d[j]);
+    // t = αx + γ: the coefficient of x^k in Σ βⱼ tʲ is Σⱼ βⱼ C(j, k) α^k γ^(j−k).
+    let (alpha, gamma) = (1.0 / half, -mid / half);
+    let map = SMatrix::<f64, N, N>::from_fn(|k, j| {
+        if j < k {
+            0.0
         } else {
-            4
+            let binom = match (j, k) {
+                (2, 1) => 2.0,
+                _ => 1.0,
+            };
+            binom * alpha.powi(k as i32) * gamma.powi((j - k) as i32)
         }
-    }
-    fn residuals(&self, p: &[f64], out: &mut [f64]) -> Option<()> {
-        let (a, b, c, d) = (p[0], p[1], p[2], p[3]);
-        let g = self.g(p)?;
-        let ln_c = c.ln();
-        for i in 0..self.y.len() {
-            let (u, _) = self.u(i, b, ln_c)?;
-            let den = 1.0 + u;
-            let shape = if self.five { den.powf(-g) } else { 1.0 / den };
-            out[i] = self.root_w[i] * (self.y[i] - (d + (a - d) * shape));
+    });
+    let coef = map * beta;
+    let se = (x.len() > N).then(|| {
+        let rss: f64 = (0..x.len())
+            .map(|i| wt(i) * (y[i] - basis(x[i]).dot(&beta)).powi(2))
+            .sum();
+        let s2 = rss / (x.len() - N) as f64;
+        let inverse = SMatrix::<f64, N, N>::from_fn(|i, j| inverse_scaled[(i, j)] / (d[i] * d[j]));
+        let cov = map * inverse * map.transpose();
+        (0..N).map(|k| (s2 * cov[(k, k)]).sqrt()).collect()
+    });
+    Ok(Polynomial {
+        coef: coef.iter().copied().collect(),
+        se,
+    })
+}
+
+/// The 4PL / 5PL least-squares problem for [`small_lm`]: p = [a, b, c, d] or
+/// [a, b, c, d, g]. Replicates of one concentration are pooled exactly: for the points
+/// of one concentration, Σ wᵢ (yᵢ − f)² = W (ȳ − f)² + Σ wᵢ (yᵢ − ȳ)² with W = Σ wᵢ and ȳ
+/// their weighted mean, so the fit sees one residual per concentration (weight W) plus
+/// a constant, the same sum of squares, the same JᵀJ, the same optimum. ln(conc) is
+/// computed once; an evaluation costs one `exp` per concentration (4PL).
+struct LogisticProblem {
+    /// In increasing concentration.
+    levels: Vec<LogisticLevel>,
+    /// Σ wᵢ (yᵢ − ȳ)² within the concentrations: the part no curve can explain.
+    within: f64,
+}
+
+struct LogisticLevel {
+    conc: f64,
+    /// ln(conc), `None` at conc 0.
+    ln_x: Option<f64>,
+    /// Σ wᵢ over the readings at this concentration.
+    weight: f64,
+    /// Their weighted mean signal.
+    mean: f64,
+}
+
+impl LogisticProblem {
+    fn new(x: &[f64], y: &[f64], w: Option<&[f64]>) -> Self {
+        let wt = |i: usize| w.map_or(1.0, |w| w[i]);
+        let mut levels: Vec<LogisticLevel> = Vec::with_capacity(x.len());
+        let mut level_of = Vec::with_capacity(x.len());
+        for i in 0..x.len() {
+            let k = match levels.iter().position(|l| l.conc == x[i]) {
+                Some(k) => k,
+                None => {
+                    levels.push(LogisticLevel {
+                        conc: x[i],
+                        ln_x: (x[i] > 0.0).then(|| x[i].ln()),
+                        weight: 0.0,
+                        mean: 0.0,
+                    });
+                    levels.len() - 1
+                }
+            };
+            // Σw and Σwy for now; the mean once every reading is in.
+            levels[k].weight += wt(i);
+            levels[k].mean += wt(i) * y[i];
+            level_of.push(k);
         }
-        Some(())
+        for l in &mut levels {
+            l.mean /= l.weight;
+        }
+        let within = (0..x.len())
+            .map(|i| wt(i) * (y[i] - levels[level_of[i]].mean).powi(2))
+            .sum();
+        levels.sort_by(|p, q| p.conc.total_cmp(&q.conc));
+        LogisticProblem { levels, within }
     }
-    fn jacobian(&self, p: &[f64], out: &mut DMatrix<f64>) -> Option<()> {
+}
+
+impl<const N: usize> small_lm::SmallProblem<N> for LogisticProblem {
+    /// Per concentration: the residual ȳ − f and ∂f/∂p (a, b, c, d, g), summed into
+    /// the normal equations of the pooled residuals √W (ȳ − f). With t = b·ln(x/c) the
+    /// shape s = (1 + eᵗ)^−g comes from one exp of −|t|, so neither tail overflows;
+    /// x = 0 gives s = 1 (needs b > 0).
+    fn sums(&self, p: &[f64; N], out: &mut small_lm::NormalSums<N>) -> Option<()> {
         let (a, b, c, d) = (p[0], p[1], p[2], p[3]);
-        let g = self.g(p)?;
+        let g = if N == 5 { p[4] } else { 1.0 };
+        if !(c > 0.0 && g > 0.0) {
+            return None;
+        }
         let ln_c = c.ln();
-        for i in 0..self.y.len() {
-            let (u, l) = self.u(i, b, ln_c)?;
-            let den = 1.0 + u;
-            let shape = if self.five { den.powf(-g) } else { 1.0 / den };
-            let w = -self.root_w[i];
-            out[(i, 0)] = w * shape;
-            out[(i, 3)] = w * (1.0 - shape);
-            // d shape / d u = −g · shape / den
-            let common = (a - d) * g * shape / den * u;
-            out[(i, 1)] = w * (-common * l);
-            out[(i, 2)] = w * (common * b / c);
-            if self.five {
-                out[(i, 4)] = w * (-(a - d) * shape * den.ln());
+        let (span, b_over_c) = (a - d, b / c);
+        let mut cost = self.within;
+        let mut jtj = SMatrix::<f64, N, N>::zeros();
+        let mut jtr = SVector::<f64, N>::zeros();
+        for level in &self.levels {
+            let (shape, dshape_dt, ln_den, l) = match level.ln_x {
+                None if b <= 0.0 => return None,
+                None => (1.0, 0.0, 0.0, 0.0),
+                Some(lx) => {
+                    let l = lx - ln_c;
+                    let t = b * l;
+                    // q = 1/(1 + eᵗ) and (5PL) ln(1 + eᵗ).
+                    let e = (-t.abs()).exp();
+                    let q = if t > 0.0 {
+                        e / (1.0 + e)
+                    } else {
+                        1.0 / (1.0 + e)
+                    };
+                    if N == 5 {
+                        let ln_den = t.max(0.0) + e.ln_1p();
+                        let shape = (-g * ln_den).exp();
+                        // ds/dt = −g · s · eᵗ/(1 + eᵗ) = −g · s · (1 − q)
+                        (shape, -g * shape * (1.0 - q), ln_den, l)
+                    } else {
+                        (q, -q * (1.0 - q), 0.0, l)
+                    }
+                }
+            };
+            let r = level.mean - (d + span * shape);
+            let k = span * dshape_dt;
+            let grad: [f64; N] = std::array::from_fn(|j| match j {
+                0 => shape,
+                1 => k * l,
+                2 => -k * b_over_c,
+                3 => 1.0 - shape,
+                _ => -span * shape * ln_den,
+            });
+            // Residual √w (ȳ − f), Jacobian row −√w ∂f/∂p.
+            let w = level.weight;
+            cost += w * r * r;
+            for j in 0..N {
+                let wg = w * grad[j];
+                jtr[j] -= wg * r;
+                for k in j..N {
+                    jtj[(j, k)] += wg * grad[k];
+                }
             }
         }
+        jtj.fill_lower_triangle_with_upper_triangle();
+        *out = small_lm::NormalSums { cost, jtj, jtr };
         Some(())
     }
 }
@@ -953,37 +1075,34 @@ fn termination_words(t: lm::Termination) -> &'static str {
 /// Starting values for a 4PL from the data: asymptotes just beyond the extreme mean
 /// signals, c where the signal crosses half-way (log-interpolated), b from the
 /// logit-log regression of the points in between.
-fn logistic_start(x: &[f64], y: &[f64]) -> [f64; 4] {
-    let mut pts = average_replicates(
-        &x.iter()
-            .zip(y)
-            .map(|(&conc, &signal)| CalPoint { conc, signal })
-            .collect::<Vec<_>>(),
-    );
-    pts.sort_by(|p, q| p.conc.total_cmp(&q.conc));
-    let lo = pts[0].signal;
-    let hi = pts[pts.len() - 1].signal;
+fn logistic_start(problem: &LogisticProblem) -> [f64; 4] {
+    // The pooled levels, in increasing concentration: (conc, ln conc, mean signal).
+    let pts = &problem.levels;
+    let lo = pts[0].mean;
+    let hi = pts[pts.len() - 1].mean;
     let span = hi - lo;
     let a = lo - 0.05 * span;
     let d = hi + 0.05 * span;
     let half = 0.5 * (lo + hi);
-    let positive: Vec<&CalPoint> = pts.iter().filter(|p| p.conc > 0.0).collect();
-    let mut c =
-        (positive.iter().map(|p| p.conc.ln()).sum::<f64>() / positive.len().max(1) as f64).exp();
-    for pair in positive.windows(2) {
-        let (p, q) = (pair[0], pair[1]);
-        if (p.signal - half) * (q.signal - half) <= 0.0 && p.signal != q.signal {
-            let t = (half - p.signal) / (q.signal - p.signal);
-            c = (p.conc.ln() + t * (q.conc.ln() - p.conc.ln())).exp();
-            break;
+    let positive = || pts.iter().filter_map(|p| p.ln_x.map(|lx| (lx, p.mean)));
+    let count = positive().count();
+    let mut c = (positive().map(|(lx, _)| lx).sum::<f64>() / count.max(1) as f64).exp();
+    let mut previous: Option<(f64, f64)> = None;
+    for (lx, mean) in positive() {
+        if let Some((pl, pm)) = previous {
+            if (pm - half) * (mean - half) <= 0.0 && pm != mean {
+                let t = (half - pm) / (mean - pm);
+                c = (pl + t * (lx - pl)).exp();
+                break;
+            }
         }
+        previous = Some((lx, mean));
     }
     // logit: ln((a − y)/(y − d)) = b ln x − b ln c
     let (mut sx, mut sy, mut sxx, mut sxy, mut k) = (0.0, 0.0, 0.0, 0.0, 0.0);
-    for p in &positive {
-        let ratio = (a - p.signal) / (p.signal - d);
+    for (lx, mean) in positive() {
+        let ratio = (a - mean) / (mean - d);
         if ratio > 0.0 && ratio.is_finite() {
-            let lx = p.conc.ln();
             let ly = ratio.ln();
             sx += lx;
             sy += ly;
@@ -1005,30 +1124,54 @@ fn logistic_start(x: &[f64], y: &[f64]) -> [f64; 4] {
     [a, b, c, d]
 }
 
+/// The lowest-RSS converged fit from `starts`, tried in order until one is `sound`, with
+/// its standard errors; adds to the evaluation count and keeps the last reason to stop.
+fn best_start<const N: usize>(
+    problem: &LogisticProblem,
+    starts: [[f64; N]; 5],
+    settings: &Settings,
+    n_points: usize,
+    sound: &dyn Fn(&[f64], lm::Termination) -> bool,
+    (evaluations, last_reason): (&mut usize, &mut lm::Termination),
+) -> Option<([f64; N], Option<[f64; N]>)> {
+    let mut best: Option<small_lm::SmallReport<N>> = None;
+    for start in starts {
+        let rep = small_lm::solve(problem, start, settings);
+        *evaluations += rep.evaluations;
+        *last_reason = rep.termination;
+        let done = sound(&rep.params, rep.termination);
+        if rep.termination.converged() && best.as_ref().is_none_or(|b| rep.rss < b.rss) {
+            best = Some(rep);
+        }
+        if done {
+            break;
+        }
+    }
+    best.map(|rep| {
+        let se = n_points
+            .checked_sub(N)
+            .and_then(|dof| small_lm::standard_errors(&rep.sums.jtj, rep.rss, dof));
+        (rep.params, se)
+    })
+}
+
 fn logistic_fit(
     model: ModelKind,
     x: &[f64],
     y: &[f64],
     w: Option<&[f64]>,
 ) -> Result<(Curve, Vec<Option<f64>>, usize), CalibrationError> {
+    // The sum of squares converges linearly (by about 200× a step on real curves):
+    // when a step gains less than 1e-12 of it, the next would gain ~1e-14, far below
+    // anything a result can show.
     let settings = Settings {
-        ftol: 1e-14,
+        ftol: 1e-12,
         xtol: 1e-14,
         gtol: 1e-14,
         max_evaluations: 5_000,
     };
-    let problem4 = LogisticProblem::new(false, x, y, w);
-    let base = logistic_start(x, y);
-    let mut evaluations = 0;
-    let mut best: Option<lm::Report> = None;
-    let mut last_reason = lm::Termination::BadStart;
-    let mut consider = |rep: lm::Report, best: &mut Option<lm::Report>| {
-        evaluations += rep.evaluations;
-        last_reason = rep.termination;
-        if rep.termination.converged() && best.as_ref().is_none_or(|b| rep.rss < b.rss) {
-            *best = Some(rep);
-        }
-    };
+    let problem = LogisticProblem::new(x, y, w);
+    let base = logistic_start(&problem);
     // The data-driven start first; a few starts around it only when it does not end
     // in a sound optimum (the logistic surface has flat valleys). "Sound" is our bound:
     // converged, slope 0.05–50, mid-point within ten times the calibrators' span, 5PL
@@ -1038,47 +1181,45 @@ fn logistic_fit(
         positive.clone().fold(f64::INFINITY, f64::min),
         positive.fold(0.0_f64, f64::max),
     );
-    let sound = |rep: &lm::Report| {
-        let p = &rep.params;
-        rep.termination.converged()
+    let sound = |p: &[f64], t: lm::Termination| {
+        t.converged()
             && p.iter().all(|v| v.is_finite())
             && (0.05..=50.0).contains(&p[1].abs())
             && p[2] >= lowest / 10.0
             && p[2] <= highest * 10.0
             && p.get(4).is_none_or(|g| (0.05..=20.0).contains(g))
     };
-    let starts = [
-        base,
-        [base[0], base[1] * 0.5, base[2], base[3]],
-        [base[0], base[1] * 2.0, base[2], base[3]],
-        [base[0], base[1], base[2] * 0.5, base[3]],
-        [base[0], base[1], base[2] * 2.0, base[3]],
-    ];
-    for s in &starts {
-        let rep = lm::solve(&problem4, s, &settings);
-        let done = sound(&rep);
-        consider(rep, &mut best);
-        if done {
-            break;
-        }
-    }
+    let mut evaluations = 0;
+    let mut last_reason = lm::Termination::BadStart;
+    let [a0, b0, c0, d0] = base;
+    let mut best = best_start(
+        &problem,
+        [
+            [a0, b0, c0, d0],
+            [a0, b0 * 0.5, c0, d0],
+            [a0, b0 * 2.0, c0, d0],
+            [a0, b0, c0 * 0.5, d0],
+            [a0, b0, c0 * 2.0, d0],
+        ],
+        &settings,
+        x.len(),
+        &sound,
+        (&mut evaluations, &mut last_reason),
+    )
+    .map(|(p, se)| (p.to_vec(), se.map(Vec::from)));
     if model == ModelKind::FivePl {
-        let problem5 = LogisticProblem::new(true, x, y, w);
-        let from = best.as_ref().map_or(base, |b| {
-            [b.params[0], b.params[1], b.params[2], b.params[3]]
-        });
-        best = None;
-        for g in [1.0, 0.5, 2.0, 0.25, 4.0] {
-            let s = [from[0], from[1], from[2], from[3], g];
-            let rep = lm::solve(&problem5, &s, &settings);
-            let done = sound(&rep);
-            consider(rep, &mut best);
-            if done {
-                break;
-            }
-        }
+        let from = best.as_ref().map_or(base.to_vec(), |b| b.0.clone());
+        best = best_start(
+            &problem,
+            [1.0, 0.5, 2.0, 0.25, 4.0].map(|g| [from[0], from[1], from[2], from[3], g]),
+            &settings,
+            x.len(),
+            &sound,
+            (&mut evaluations, &mut last_reason),
+        )
+        .map(|(p, se)| (p.to_vec(), se.map(Vec::from)));
     }
-    let Some(rep) = best else {
+    let Some((p, se)) = best else {
         return Err(CalibrationError::new(
             CalErrorKind::NoConvergence,
             format!(
@@ -1090,7 +1231,7 @@ fn logistic_fit(
             ),
         ));
     };
-    let p = &rep.params;
+    let p = &p;
     // A mid-point far outside the calibrators means the data do not define the curve.
     if !(p[2] >= lowest / 100.0 && p[2] <= highest * 100.0) {
         return Err(CalibrationError::new(
@@ -1119,7 +1260,6 @@ fn logistic_fit(
             d: p[3],
         }
     };
-    let se = lm::standard_errors(&rep.jacobian, rep.rss);
     let std_errors = (0..p.len()).map(|j| se.as_ref().map(|s| s[j])).collect();
     Ok((curve, std_errors, evaluations))
 }
@@ -1273,41 +1413,71 @@ mod tests {
         assert!((five.conc_at(s, 10.0).unwrap() - 7.0).abs() < 1e-9);
     }
 
-    /// The analytic 4PL/5PL Jacobian agrees with central finite differences, also with
-    /// weights and a zero-concentration point.
+    /// The pooled 4PL/5PL sums equal those of the raw points: the sum of squares is
+    /// Σ wᵢ (yᵢ − f(xᵢ))² computed directly with the curve, Jᵀr is half the central
+    /// finite-difference gradient of that sum, and JᵀJ is Σ wᵢ ∇f ∇fᵀ from central
+    /// differences of the curve, with replicates, weights and a zero concentration.
     #[test]
-    fn logistic_jacobian_matches_finite_differences() {
-        let x = [0.0, 0.5, 2.0, 8.0, 30.0];
-        let y = [0.1, 0.3, 0.9, 1.6, 1.9];
-        let w = [1.0, 2.0, 0.5, 1.5, 1.0];
-        for five in [false, true] {
-            let prob = LogisticProblem::new(five, &x, &y, Some(&w));
-            let p: Vec<f64> = if five {
-                vec![0.05, 1.3, 4.0, 2.1, 0.7]
-            } else {
-                vec![0.05, 1.3, 4.0, 2.1]
+    fn pooled_logistic_sums_match_the_raw_points() {
+        use small_lm::SmallProblem;
+        let x = [0.0, 0.0, 0.5, 2.0, 2.0, 2.0, 8.0, 30.0, 30.0];
+        let y = [0.1, 0.12, 0.3, 0.9, 0.86, 0.95, 1.6, 1.9, 1.88];
+        let w = [1.0, 1.2, 2.0, 0.5, 0.7, 0.6, 1.5, 1.0, 0.9];
+        fn curve(p: &[f64]) -> Curve {
+            match *p {
+                [a, b, c, d] => Curve::FourPl { a, b, c, d },
+                [a, b, c, d, g] => Curve::FivePl { a, b, c, d, g },
+                _ => unreachable!(),
+            }
+        }
+        fn check<const N: usize>(p: [f64; N], x: &[f64], y: &[f64], w: &[f64]) {
+            let prob = LogisticProblem::new(x, y, Some(w));
+            let mut sums = small_lm::NormalSums::<N>::default();
+            prob.sums(&p, &mut sums).unwrap();
+            let cost = |p: &[f64]| -> f64 {
+                let c = curve(p);
+                (0..x.len())
+                    .map(|i| w[i] * (y[i] - c.signal_at(x[i])).powi(2))
+                    .sum()
             };
-            let n = p.len();
-            let mut jac = DMatrix::zeros(x.len(), n);
-            prob.jacobian(&p, &mut jac).unwrap();
-            for j in 0..n {
-                let h = 1e-6 * p[j].abs().max(1e-3);
-                let (mut p1, mut p2) = (p.clone(), p.clone());
-                p1[j] += h;
-                p2[j] -= h;
-                let (mut r1, mut r2) = (vec![0.0; x.len()], vec![0.0; x.len()]);
-                prob.residuals(&p1, &mut r1).unwrap();
-                prob.residuals(&p2, &mut r2).unwrap();
-                for i in 0..x.len() {
-                    let fd = (r1[i] - r2[i]) / (2.0 * h);
+            assert!((sums.cost - cost(&p)).abs() <= 1e-12 * cost(&p), "N={N}");
+            let h = |j: usize| 1e-6 * p[j].abs().max(1e-3);
+            let shifted = |j: usize, by: f64| {
+                let mut q = p.to_vec();
+                q[j] += by;
+                q
+            };
+            for j in 0..N {
+                let fd = (cost(&shifted(j, h(j))) - cost(&shifted(j, -h(j)))) / (2.0 * h(j));
+                assert!(
+                    (2.0 * sums.jtr[j] - fd).abs() <= 1e-6 * fd.abs().max(1e-6),
+                    "N={N} j={j}: {} vs {fd}",
+                    2.0 * sums.jtr[j]
+                );
+            }
+            let grad = |i: usize, j: usize| {
+                (curve(&shifted(j, h(j))).signal_at(x[i])
+                    - curve(&shifted(j, -h(j))).signal_at(x[i]))
+                    / (2.0 * h(j))
+            };
+            for j in 0..N {
+                for k in 0..N {
+                    let fd: f64 = (0..x.len()).map(|i| w[i] * grad(i, j) * grad(i, k)).sum();
                     assert!(
-                        (fd - jac[(i, j)]).abs() <= 1e-6 * fd.abs().max(1e-6),
-                        "five={five} i={i} j={j}: {} vs {fd}",
-                        jac[(i, j)]
+                        (sums.jtj[(j, k)] - fd).abs() <= 1e-6 * fd.abs().max(1e-6),
+                        "N={N} ({j},{k}): {} vs {fd}",
+                        sums.jtj[(j, k)]
                     );
                 }
             }
         }
+        check([0.05, 1.3, 4.0, 2.1], &x, &y, &w);
+        check([0.05, 1.3, 4.0, 2.1, 0.7], &x, &y, &w);
+        // A steep curve far in its tails (t = b ln(x/c) beyond ±700) stays finite.
+        let prob = LogisticProblem::new(&x, &y, None);
+        let mut sums = small_lm::NormalSums::<5>::default();
+        prob.sums(&[0.05, 400.0, 4.0, 2.1, 0.7], &mut sums).unwrap();
+        assert!(sums.cost.is_finite() && sums.jtj.iter().all(|v| v.is_finite()));
     }
 
     #[test]

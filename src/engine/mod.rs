@@ -18,5 +18,6 @@ pub mod qc;
 pub mod qcstats;
 pub mod readings;
 pub mod results;
+pub mod small_lm;
 pub mod stability;
 pub mod units;
