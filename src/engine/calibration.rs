@@ -8,12 +8,13 @@
 //! * 4PL: signal = d + (a − d) / (1 + (conc/c)^b)
 //! * 5PL: signal = d + (a − d) / (1 + (conc/c)^b)^g
 //!
-//! Linear and quadratic fits are solved by QR on a Vandermonde matrix whose x column
-//! is divided by the largest |conc|: the raw coefficients come back exactly by dividing
-//! by powers of that scale, and the conditioning is that of x in [−1, 1] (the NIST
-//! Pontius set loses about six digits through the normal equations). 4PL and 5PL go
-//! through the Levenberg–Marquardt core in [`super::lm`] from automatic starting
-//! values, keeping c > 0 and g > 0.
+//! Linear and quadratic fits solve the normal equations in t = (x − m)/h, the
+//! concentrations mapped onto [−1, 1], where 1, t, t² are nearly orthogonal (in raw
+//! units the NIST Pontius set loses about six digits through the normal equations;
+//! centred it keeps 12). The line through the origin is Σwxy / Σwx². 4PL and 5PL go
+//! through the fixed-size Levenberg–Marquardt of [`super::small_lm`] from automatic
+//! starting values, keeping c > 0 and g > 0, with the replicates of each concentration
+//! pooled into one weighted residual (exactly: the same sum of squares and optimum).
 //!
 //! Weights (1/x, 1/x², 1/y, 1/y²) use the calibrator's assigned concentration and its
 //! observed signal. RSS is weighted where weighted; R² = 1 − RSS/TSS with TSS about the
